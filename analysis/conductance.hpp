@@ -1,0 +1,59 @@
+// From lock-in readings to the sheet magnetoconductance of one field sweep.
+//
+// Four-terminal, current-biased measurement (common practice):
+//   R = V_x / (gain * I)   (rms in-phase voltage over rms current; gain is the
+//                           voltage preamplifier's, 1 when there is none)
+//   R_sq = R / N           (N = L/W, the number of squares between the probes)
+//   sigma_sq = 1/R_sq, or with a Hall component
+//   sigma_xx = rho_xx / (rho_xx^2 + rho_xy^2).
+// Symmetrizing in B, rho(B) -> [rho(B) + rho(-B)]/2, removes Hall pickup from
+// misaligned contacts (Onsager reciprocity).
+// Delta sigma(B) = sigma(B) - sigma(0), with sigma(0) estimated robustly from
+// the points nearest zero field, never from a single noisy point.
+#pragma once
+
+#include <span>
+#include <string>
+#include <vector>
+
+namespace lphi::conductance {
+
+double resistance_ohm(double lockin_x_v, double current_a, double gain = 1.0);
+double sheet_resistance_ohm(double resistance_ohm, double squares);
+double sheet_conductance_s(double sheet_resistance_ohm);
+// Tensor inversion: sigma_xx from rho_xx and rho_xy (both per square, ohm).
+double sheet_conductance_xx_s(double rho_xx_ohm, double rho_xy_ohm);
+
+struct FieldPoint {
+  double field_t = 0.0;
+  double value = 0.0;  // a sheet resistance (ohm) or a sheet conductance (S)
+};
+
+// One point of a prepared sweep: |B| and Delta sigma_sq in siemens.
+struct DeltaSigmaPoint {
+  double field_t = 0.0;        // >= 0
+  double delta_sigma_s = 0.0;
+};
+
+struct PreparedSweep {
+  std::vector<DeltaSigmaPoint> points;  // sorted by field, field >= 0
+  double sigma0_s = 0.0;                // robust estimate of sigma_sq(B = 0)
+  double sigma0_err_s = 0.0;            // its standard error
+  double rsq0_ohm = 0.0;                // 1/sigma0_s
+  double max_field_t = 0.0;             // largest |B| kept after symmetrizing
+  std::size_t n_input = 0;
+};
+
+struct PrepareStatus {
+  bool ok = false;
+  std::string error;  // set when !ok: what was wrong with the data
+};
+
+// Symmetrizes sheet resistances rho(B) measured on both sides of zero field,
+// converts to sheet conductance and subtracts the robust sigma(0).
+// Fails (with a message) when the sweep does not reach both signs of B, has
+// fewer than 8 points on either side, or contains non-finite values.
+PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance_ohm,
+                            PreparedSweep& out);
+
+}  // namespace lphi::conductance

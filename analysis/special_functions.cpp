@@ -1,0 +1,1 @@
+#include "analysis/special_functions.hpp"

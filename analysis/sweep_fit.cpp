@@ -1,0 +1,1 @@
+#include "analysis/sweep_fit.hpp"
