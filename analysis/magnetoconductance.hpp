@@ -44,10 +44,25 @@
 //    e^2/(pi h) units: Delta sigma = t sqrt(eB/hbar) f3(B_phi/B).
 //
 // Accuracy: relative error at most 1e-10 against high-precision values over
-// B_phi/B from 1e-3 to 1e8 (tests/models/).
+// B_phi/B from 1e-3 to 1e8, and for every model over B = 1e-6..10 T,
+// L_phi = 10 nm..100 um, L_so = 10 nm..10 um (tests/models/; the worst seen is
+// ~1e-12). Where a model changes sign (the spin-orbit forms crossing from
+// localization to antilocalization) the error is relative to the sum of the
+// magnitudes of its terms.
+//
+// Numerics: near B = 0 every form is evaluated without cancellation (series
+// in B/B_phi for the 2D and 3D brackets; the wire's L_phi - (1/L_phi^2 +
+// 1/L_B^2)^(-1/2) rewritten as a product of positive factors), and B = 0 gives
+// exactly 0 for values and derivatives.
+//
+// Domain: lengths must be positive and finite (L_so may be +infinity, meaning
+// no spin-orbit scattering), field and alpha finite. Outside it the functions
+// return NaN; parameter_error() names the offending argument. Nothing throws.
+// All functions are pure and thread-safe.
 #pragma once
 
 #include <optional>
+#include <string>
 #include <string_view>
 
 namespace lphi::mc {
@@ -60,6 +75,14 @@ std::optional<Model> model_from_name(std::string_view name);
 // B_phi = hbar/(4 e L^2) and its inverse L = sqrt(hbar/(4 e B)).
 double characteristic_field_t(double length_m);
 double characteristic_length_m(double field_t);
+
+// Empty when the arguments of the model's functions are inside the domain,
+// otherwise a message naming the first bad one, e.g.
+// "lphi_m must be positive and finite (got -1e-07)". lso_m is checked for
+// hln2d_so (and for wire1d when given, i.e. non-zero); geometry_m is the wire
+// width (wire1d) or the film thickness (kawabata3d) and is ignored otherwise.
+std::string parameter_error(Model model, double field_t, double alpha, double lphi_m,
+                            double lso_m, double geometry_m);
 
 // Values in units of e^2/(pi h). field_t may be negative (models are even).
 double hln2d(double field_t, double alpha, double lphi_m);
