@@ -1,1 +1,265 @@
 #include "analysis/conductance.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <limits>
+#include <string>
+#include <vector>
+
+namespace lphi::conductance {
+namespace {
+
+constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
+
+// A symmetrized sheet resistance at |B|, with the number of raw readings that
+// went into it (2 for a mirrored pair, 1 for a reading at exactly B = 0).
+struct SymmetrizedPoint {
+  double field_t;
+  double rsq_ohm;
+  double readings;
+};
+
+std::string format_field(double field_t) {
+  char buf[48];
+  std::snprintf(buf, sizeof buf, "%.6g T", field_t);
+  return buf;
+}
+
+// Linear interpolation of the sorted curve (field, value) at `field_t`, which
+// must lie inside [front, back]. Readings taken twice at the same field are
+// averaged by the caller before this is used.
+double interpolate(const std::vector<FieldPoint>& sorted, double field_t) {
+  auto hi = std::lower_bound(sorted.begin(), sorted.end(), field_t,
+                             [](const FieldPoint& p, double b) { return p.field_t < b; });
+  if (hi == sorted.end()) return sorted.back().value;
+  if (hi->field_t == field_t || hi == sorted.begin()) return hi->value;
+  auto lo = hi - 1;
+  const double t = (field_t - lo->field_t) / (hi->field_t - lo->field_t);
+  return lo->value + t * (hi->value - lo->value);
+}
+
+// sigma(0) from a robust weighted least-squares fit of a + c B^2 to the
+// innermost points: Tukey-biweight iteratively reweighted least squares with
+// the scale from the median absolute deviation. The prior weight of a point is
+// the number of raw readings averaged into it. A single wild reading (a spike
+// at B = 0) gets weight zero instead of setting the reference of the sweep.
+struct ZeroFieldEstimate {
+  double sigma0_s;
+  double sigma0_err_s;
+};
+
+ZeroFieldEstimate estimate_sigma0(const std::vector<double>& field_t,
+                                  const std::vector<double>& sigma_s,
+                                  const std::vector<double>& prior_weight) {
+  const std::size_t n = field_t.size();
+  // Scale B^2 to order one so that the 2x2 normal equations are well conditioned.
+  double b2_max = 0.0;
+  for (double b : field_t) b2_max = std::max(b2_max, b * b);
+  if (b2_max == 0.0) b2_max = 1.0;
+
+  std::vector<double> weight = prior_weight;
+  std::vector<double> residual(n, 0.0);
+  double a = 0.0, c = 0.0;
+  for (int iteration = 0; iteration < 20; ++iteration) {
+    double s0 = 0, s1 = 0, s2 = 0, t0 = 0, t1 = 0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const double u = field_t[i] * field_t[i] / b2_max;
+      const double w = weight[i];
+      s0 += w;
+      s1 += w * u;
+      s2 += w * u * u;
+      t0 += w * sigma_s[i];
+      t1 += w * u * sigma_s[i];
+    }
+    const double det = s0 * s2 - s1 * s1;
+    double a_new, c_new;
+    if (det > 1e-12 * s0 * s2 && s0 > 0) {
+      a_new = (s2 * t0 - s1 * t1) / det;
+      c_new = (s0 * t1 - s1 * t0) / det;
+    } else {  // all surviving points at one |B|: the weighted mean
+      a_new = t0 / s0;
+      c_new = 0.0;
+    }
+    for (std::size_t i = 0; i < n; ++i)
+      residual[i] = sigma_s[i] - a_new - c_new * field_t[i] * field_t[i] / b2_max;
+
+    // Robust scale: 1.4826 * MAD is the standard deviation for Gaussian noise
+    // (common practice). Residuals are scaled by sqrt(prior weight) so that
+    // averaged points and single readings are judged on the same footing.
+    std::vector<double> scaled(n);
+    for (std::size_t i = 0; i < n; ++i)
+      scaled[i] = std::abs(residual[i]) * std::sqrt(prior_weight[i]);
+    std::nth_element(scaled.begin(), scaled.begin() + static_cast<long>(n / 2), scaled.end());
+    const double mad = scaled[n / 2];
+    const double scale = 1.4826 * mad;
+    const bool settled = iteration > 0 && std::abs(a_new - a) <= 1e-12 * std::abs(a_new) &&
+                         std::abs(c_new - c) <= 1e-12 * (std::abs(c_new) + std::abs(a_new));
+    a = a_new;
+    c = c_new;
+    if (scale == 0.0 || settled) break;
+    // Tukey biweight with the usual tuning constant 4.685 (95% efficiency for
+    // Gaussian noise; common practice).
+    const double k = 4.685 * scale;
+    for (std::size_t i = 0; i < n; ++i) {
+      const double z = residual[i] * std::sqrt(prior_weight[i]) / k;
+      weight[i] = std::abs(z) < 1.0 ? prior_weight[i] * (1 - z * z) * (1 - z * z) : 0.0;
+    }
+  }
+
+  // Final estimate: the prior-weighted fit over the points the biweight kept
+  // (for Gaussian noise that is nearly all of them), with the classical
+  // standard error s^2 (X^T P X)^-1 of that fit. Treating the robust weights
+  // themselves as fixed would understate the error.
+  double s0 = 0, s1 = 0, s2 = 0, t0 = 0, t1 = 0, used = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    if (!(weight[i] > 0.0)) continue;
+    const double u = field_t[i] * field_t[i] / b2_max;
+    const double w = prior_weight[i];
+    s0 += w;
+    s1 += w * u;
+    s2 += w * u * u;
+    t0 += w * sigma_s[i];
+    t1 += w * u * sigma_s[i];
+    used += 1.0;
+  }
+  const double det = s0 * s2 - s1 * s1;
+  if (!(det > 1e-12 * s0 * s2) || used < 3.0) return {a, kNaN};
+  a = (s2 * t0 - s1 * t1) / det;
+  c = (s0 * t1 - s1 * t0) / det;
+  double ssr = 0.0;
+  for (std::size_t i = 0; i < n; ++i) {
+    if (!(weight[i] > 0.0)) continue;
+    const double r = sigma_s[i] - a - c * field_t[i] * field_t[i] / b2_max;
+    ssr += prior_weight[i] * r * r;
+  }
+  return {a, std::sqrt(ssr / (used - 2.0) * s2 / det)};
+}
+
+}  // namespace
+
+double resistance_ohm(double lockin_x_v, double current_a, double gain) {
+  if (!(current_a != 0.0) || !(gain != 0.0)) return kNaN;
+  return lockin_x_v / (gain * current_a);
+}
+
+double sheet_resistance_ohm(double resistance, double squares) {
+  if (!(squares > 0.0)) return kNaN;
+  return resistance / squares;
+}
+
+double sheet_conductance_s(double sheet_resistance) {
+  if (!(sheet_resistance != 0.0)) return kNaN;
+  return 1.0 / sheet_resistance;
+}
+
+double sheet_conductance_xx_s(double rho_xx_ohm, double rho_xy_ohm) {
+  const double denominator = rho_xx_ohm * rho_xx_ohm + rho_xy_ohm * rho_xy_ohm;
+  if (!(denominator > 0.0)) return kNaN;
+  return rho_xx_ohm / denominator;
+}
+
+PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, PreparedSweep& out) {
+  out = PreparedSweep{};
+  out.n_input = sheet_resistance.size();
+  auto fail = [](std::string message) { return PrepareStatus{false, std::move(message)}; };
+
+  if (sheet_resistance.empty()) return fail("the sweep is empty");
+  for (std::size_t i = 0; i < sheet_resistance.size(); ++i) {
+    const FieldPoint& p = sheet_resistance[i];
+    if (!std::isfinite(p.field_t))
+      return fail("point " + std::to_string(i) + " has a non-finite field");
+    if (!std::isfinite(p.value))
+      return fail("point " + std::to_string(i) + " (B = " + format_field(p.field_t) +
+                  ") has a non-finite sheet resistance");
+    if (!(p.value > 0.0))
+      return fail("point " + std::to_string(i) + " (B = " + format_field(p.field_t) +
+                  ") has a sheet resistance <= 0 ohm");
+  }
+
+  // Sort by field and average readings repeated at the same field.
+  std::vector<FieldPoint> sorted(sheet_resistance.begin(), sheet_resistance.end());
+  std::stable_sort(sorted.begin(), sorted.end(),
+                   [](const FieldPoint& a, const FieldPoint& b) { return a.field_t < b.field_t; });
+  std::vector<FieldPoint> curve;
+  std::vector<double> repeats;
+  for (const FieldPoint& p : sorted) {
+    if (!curve.empty() && curve.back().field_t == p.field_t) {
+      repeats.back() += 1.0;
+      curve.back().value += (p.value - curve.back().value) / repeats.back();
+    } else {
+      curve.push_back(p);
+      repeats.push_back(1.0);
+    }
+  }
+
+  std::size_t n_negative = 0, n_positive = 0;
+  for (const FieldPoint& p : curve) {
+    if (p.field_t < 0) ++n_negative;
+    if (p.field_t > 0) ++n_positive;
+  }
+  if (n_negative == 0 || n_positive == 0)
+    return fail(std::string("the sweep does not cross zero field (all fields are ") +
+                (n_positive == 0 ? "<= 0" : ">= 0") + "); symmetrizing needs both signs of B");
+  constexpr std::size_t kMinPerSide = 8;
+  if (n_negative < kMinPerSide || n_positive < kMinPerSide)
+    return fail("too few points to symmetrize: " + std::to_string(n_negative) + " at B < 0 and " +
+                std::to_string(n_positive) + " at B > 0 (at least " + std::to_string(kMinPerSide) +
+                " needed on each side)");
+
+  // Symmetrize at the measured fields of the denser side; the opposite branch
+  // is interpolated linearly at the mirrored field. Fields whose mirror lies
+  // outside the measured range are dropped. Using one side only keeps every
+  // raw reading in at most one symmetrized point (besides interpolation), so
+  // that the points stay independent.
+  const bool use_positive = n_positive >= n_negative;
+  const double low = curve.front().field_t;
+  const double high = curve.back().field_t;
+  std::vector<SymmetrizedPoint> symmetric;
+  for (std::size_t i = 0; i < curve.size(); ++i) {
+    const FieldPoint& p = curve[i];
+    if (p.field_t == 0.0) {
+      symmetric.push_back({0.0, p.value, repeats[i]});
+      continue;
+    }
+    if ((p.field_t > 0) != use_positive) continue;
+    const double mirror = -p.field_t;
+    if (mirror < low || mirror > high) continue;
+    const double opposite = interpolate(curve, mirror);
+    symmetric.push_back({std::abs(p.field_t), 0.5 * (p.value + opposite), repeats[i] + 1.0});
+  }
+  std::sort(
+      symmetric.begin(), symmetric.end(),
+      [](const SymmetrizedPoint& a, const SymmetrizedPoint& b) { return a.field_t < b.field_t; });
+  if (symmetric.size() < kMinPerSide)
+    return fail("only " + std::to_string(symmetric.size()) +
+                " fields can be mirrored between the two branches (at least " +
+                std::to_string(kMinPerSide) + " needed); the branches barely overlap");
+
+  // sigma(0) from the innermost points: enough of them to average the noise
+  // down, few enough that a + c B^2 still describes the curve there.
+  const std::size_t n_inner =
+      std::min(symmetric.size(), std::clamp<std::size_t>(symmetric.size() / 5, 16, 25));
+  std::vector<double> inner_field, inner_sigma, inner_weight;
+  for (std::size_t i = 0; i < n_inner; ++i) {
+    inner_field.push_back(symmetric[i].field_t);
+    inner_sigma.push_back(1.0 / symmetric[i].rsq_ohm);
+    inner_weight.push_back(symmetric[i].readings);
+  }
+  const ZeroFieldEstimate zero = estimate_sigma0(inner_field, inner_sigma, inner_weight);
+  if (!(zero.sigma0_s > 0.0) || !std::isfinite(zero.sigma0_s))
+    return fail(
+        "the zero-field conductance estimate is not positive; the points nearest "
+        "B = 0 are inconsistent");
+
+  out.sigma0_s = zero.sigma0_s;
+  out.sigma0_err_s = zero.sigma0_err_s;
+  out.rsq0_ohm = 1.0 / zero.sigma0_s;
+  out.points.reserve(symmetric.size());
+  for (const SymmetrizedPoint& p : symmetric)
+    out.points.push_back({p.field_t, 1.0 / p.rsq_ohm - zero.sigma0_s});
+  out.max_field_t = symmetric.back().field_t;
+  return {true, {}};
+}
+
+}  // namespace lphi::conductance

@@ -18,6 +18,9 @@
 
 namespace lphi::conductance {
 
+// The conversions return NaN where the quantity is undefined (zero current or
+// gain, squares <= 0, zero resistance), so that a bad reading is refused by
+// prepare_sweep as non-finite rather than turned into a plausible number.
 double resistance_ohm(double lockin_x_v, double current_a, double gain = 1.0);
 double sheet_resistance_ohm(double resistance_ohm, double squares);
 double sheet_conductance_s(double sheet_resistance_ohm);
@@ -51,8 +54,22 @@ struct PrepareStatus {
 
 // Symmetrizes sheet resistances rho(B) measured on both sides of zero field,
 // converts to sheet conductance and subtracts the robust sigma(0).
-// Fails (with a message) when the sweep does not reach both signs of B, has
-// fewer than 8 points on either side, or contains non-finite values.
+//
+// Readings repeated at one field are averaged. Symmetrized points sit at the
+// measured fields of the side with more points (B > 0 on a tie); the other
+// branch is interpolated linearly at each mirrored field, and fields whose
+// mirror lies outside the measured range are dropped. A reading at exactly
+// B = 0 is kept as it is.
+//
+// sigma(0) comes from a robust (Tukey-biweight, iteratively reweighted) least-
+// squares fit of a + c B^2 to the innermost points (a fifth of them, between
+// 16 and 25; all when there are fewer), each weighted by the number of
+// readings averaged into it; sigma0_err_s is the standard error of a. One
+// wild reading near zero field does not move it.
+//
+// Fails (with a message naming the problem) when the sweep is empty, contains
+// a non-finite field or value or a sheet resistance <= 0, does not reach both
+// signs of B, or has fewer than 8 points on either side.
 PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance_ohm,
                             PreparedSweep& out);
 

@@ -1,34 +1,83 @@
 // Fitting one symmetrized magnetoconductance sweep.
 //
 // The model (magnetoconductance.hpp) is fitted to Delta sigma_sq(B) by
-// Levenberg-Marquardt (Ceres) with analytic derivatives. Positive parameters
-// (L_phi, L_so) are fitted as their logarithms; alpha, the optional offset and
-// the optional classical background c*B^2 enter linearly. Residuals are in
-// units of e^2/(pi h) so that they are of order one (in siemens, ~1e-5, they
+// Levenberg-Marquardt (Ceres, one cost function holding every residual of the
+// sweep; dense normal Cholesky, which for 2-5 parameters edges out dense QR)
+// with analytic derivatives from the models' *_grad functions. Positive
+// parameters (L_phi, L_so) are fitted as their logarithms; alpha, the
+// optional offset and the optional classical background c*B^2 enter linearly.
+// Residuals are in units of e^2/(pi h), or in units of the point errors when
+// those are given, so that they are of order one (in siemens, ~1e-5, they
 // would trip Ceres' absolute gradient tolerance).
 //
-// Field window. The fit uses |B| <= window. Unless overridden, the window is
-// window_factor * B_phi (B_phi from the current estimate, iterated until it
-// settles), capped at transport_cap * B_tr when the mean free path is known
-// (B_tr = hbar/(2 e l^2)) and at the largest measured field.
+// Characteristic field B_c. The window rules below compare fields with the
+// field at which the model leaves its low-field regime:
+//   hln2d, kawabata3d: B_c = B_phi = hbar/(4 e L_phi^2);
+//   hln2d_so:          B_c = max(B_phi, B_so), B_so = hbar/(4 e L_so^2);
+//   wire1d:            B_c = sqrt(3) hbar/(e w L_phi), where L_B = L_phi
+//                      (with spin-orbit the larger of that and the same for L_so).
 //
-// alpha is fitted freely only when the window reaches at least
+// Field window. The fit uses |B| <= window. Unless overridden, the window is
+// window_factor * B_c (B_c first from the start values, then from each fit,
+// iterated until the window moves by less than 5%, at most 8 fits), capped at
+// transport_cap * B_tr when the mean free path is known (B_tr = hbar/(2 e l^2)),
+// for wire1d at hbar/(e w^2) (magnetic length equal to the width, the edge of
+// the quasi-1D form's validity), and at the largest measured field. The first
+// start-value search uses the whole capped range. The window always holds
+// the 10 lowest fields when the data have them.
+//
+// alpha (hln2d) is fitted freely only when the window reaches at least
 // alpha_free_min_ratio * B_phi; below that only the low-field curvature
 // alpha L_phi^4 is determined, so alpha is held (alpha_default, 1 for weak
 // localization) and the flag alpha_held is set.
 //
-// Start values come from the data: a grid over ln L_phi (and ln L_so) spanning
-// the fields the sweep resolves, with the linear parameters solved exactly at
-// each grid point (variable projection); the best grid point starts LM.
+// Start values come from the data: a grid over ln L_phi (and ln L_so) whose
+// characteristic fields run, by factors of 2, from half the mean field step to
+// twice the window, with the linear parameters solved exactly at each grid
+// point (variable projection, on at most 64 evenly chosen points); the best
+// grid point, refined by a parabola through its neighbours, starts LM.
+// Lengths are clamped so that B_c starts within [field step/100, 100 window]
+// and flagged when they end outside it.
 //
-// Errors are 1-sigma from the covariance at the solution; when point errors
-// are not given, the covariance is scaled by the reduced chi-square.
+// Errors are 1-sigma from the covariance (J^T J)^-1 formed from the analytic
+// Jacobian at the solution; when point errors are not given, the covariance
+// is scaled by the reduced chi-square. L_phi's error is L_phi times the error
+// of ln L_phi. A held alpha has alpha_err = 0. chi2 is the sum of squared
+// residuals (dimensionless with point errors, in (e^2/(pi h))^2 without);
+// chi2_red = chi2 / (n - p).
+//
+// Quality flags and their thresholds:
+//   window_too_narrow       window < 2 B_c: the sweep does not reach well
+//                           past B_c, the length is not determined.
+//   alpha_held              alpha held at alpha_default (see above).
+//   alpha_lphi_degenerate   alpha free and |corr(alpha, ln L_phi)| > 0.995, or
+//                           J^T J singular at the solution. The HLN form
+//                           correlates the two strongly even in good sweeps
+//                           (with an offset: 0.97 at a 20 B_phi window, 0.993
+//                           at 5 B_phi, 0.998 at 2 B_phi), so 0.995 marks a
+//                           window of about 4 B_phi or an equally poor sweep.
+//   not_converged           Ceres did not report convergence.
+//   outside_diffusive       (l known) window > B_tr, or L_phi < l.
+//   dimensionality_mismatch (geometry known) hln2d/hln2d_so: L_phi < t;
+//                           wire1d: L_phi < w or L_phi < t; kawabata3d:
+//                           L_phi > 2 t (slack because the crossover is gradual).
+//   too_few_points          fewer than max(10, 3 p) points in the window,
+//                           p the number of fitted parameters.
+//   parameter_at_limit      a length's B_c fell below a quarter of the mean
+//                           field step (the curve is then in its logarithmic
+//                           regime everywhere, the length trades against the
+//                           offset) or left [field step/100, 100 window].
+//
+// Bad input (empty, non-finite, negative errors, a wire without width, a 3D
+// film without thickness, fewer points than parameters) gives ok = false and
+// an error naming the problem; nothing is fitted.
 // No I/O, no threads, deterministic.
 #pragma once
 
 #include <optional>
 #include <span>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "conductance.hpp"
@@ -52,16 +101,16 @@ struct SweepFitOptions {
   bool fit_background = false;        // classical c*B^2 term
   bool wire_spin_orbit = false;       // wire1d: also fit L_so
   std::optional<double> window_t;     // override the automatic field window
-  double window_factor = 20.0;        // window = window_factor * B_phi
+  double window_factor = 20.0;        // window = window_factor * B_c
   double transport_cap = 0.3;         // window <= transport_cap * B_tr
   double alpha_free_min_ratio = 5.0;  // fit alpha only if window >= this * B_phi
   int max_iterations = 200;
 };
 
 enum class Flag {
-  window_too_narrow,       // window below ~2 B_phi: L_phi poorly determined
+  window_too_narrow,       // window below 2 B_c: L_phi poorly determined
   alpha_held,              // alpha not fitted freely (window too short)
-  alpha_lphi_degenerate,   // |corr(alpha, L_phi)| > 0.95
+  alpha_lphi_degenerate,   // |corr(alpha, ln L_phi)| > 0.995
   not_converged,           // Ceres did not report convergence
   outside_diffusive,       // window beyond B_tr, or L_phi < mean free path
   dimensionality_mismatch, // fitted L_phi inconsistent with the model's geometry
@@ -71,6 +120,8 @@ enum class Flag {
 std::string_view flag_name(Flag f);  // "window-too-narrow", ...
 
 struct SweepFitResult {
+  bool ok = false;     // false: the input could not be fitted, see error
+  std::string error;   // what was wrong with the input (empty when ok)
   mc::Model model = mc::Model::hln2d;
   double lphi_m = 0.0, lphi_err_m = 0.0;
   std::optional<double> alpha, alpha_err;    // hln2d only
@@ -79,11 +130,11 @@ struct SweepFitResult {
   std::optional<double> background_s_per_t2, background_err_s_per_t2;
   double corr_alpha_lphi = 0.0;              // correlation(alpha, ln L_phi)
   double corr_lso_lphi = 0.0;
-  double chi2 = 0.0, chi2_red = 0.0;
+  double chi2 = 0.0, chi2_red = 0.0;         // sum of squared residuals (see top)
   std::size_t n_points = 0;                  // points inside the window
   double field_window_t = 0.0;
   double b_phi_t = 0.0;
-  int iterations = 0;
+  int iterations = 0;                        // LM iterations, all window passes
   bool converged = false;
   std::string termination;                   // Ceres' termination reason
   std::vector<Flag> flags;
