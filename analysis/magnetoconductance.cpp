@@ -61,7 +61,7 @@ std::string describe(std::string_view name, double v, std::string_view requireme
 std::string_view model_name(Model m) {
   switch (m) {
     case Model::hln2d: return "hln2d";
-    case Model::hln2d_so: return "hln2d_so";
+    case Model::hln2d_so: return "hln2d-so";
     case Model::wire1d: return "wire1d";
     case Model::kawabata3d: return "kawabata3d";
   }

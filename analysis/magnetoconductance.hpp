@@ -69,7 +69,9 @@ namespace lphi::mc {
 
 enum class Model { hln2d, hln2d_so, wire1d, kawabata3d };
 
-std::string_view model_name(Model m);                      // "hln2d", ...
+// The names used by the config file, the command line and the JSON output:
+// "hln2d", "hln2d-so", "wire1d", "kawabata3d".
+std::string_view model_name(Model m);
 std::optional<Model> model_from_name(std::string_view name);
 
 // B_phi = hbar/(4 e L^2) and its inverse L = sqrt(hbar/(4 e B)).

@@ -1,0 +1,287 @@
+// lphi fit: one magnetoconductance sweep from a CSV table to L_phi.
+//
+// rows -> R_sq (conductance.hpp) -> prepare_sweep -> fit_sweep (sweep_fit.hpp)
+
+#include <algorithm>
+#include <cmath>
+#include <iostream>
+#include <memory>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "analysis/conductance.hpp"
+#include "analysis/magnetoconductance.hpp"
+#include "analysis/sweep_fit.hpp"
+#include "daemon/client/commands.hpp"
+#include "daemon/client/csv_table.hpp"
+#include "daemon/client/exit_codes.hpp"
+#include "daemon/client/format.hpp"
+#include "daemon/client/options.hpp"
+
+namespace lphi::client {
+namespace {
+
+// Which column holds the measured signal, and how it becomes R_sq.
+enum class Signal { rsq, resistance, lockin };
+
+constexpr std::string_view column_name(Signal s) {
+  switch (s) {
+    case Signal::rsq: return "rsq_ohm";
+    case Signal::resistance: return "r_ohm";
+    case Signal::lockin: return "lockin_x_v";
+  }
+  return "";
+}
+
+std::optional<Signal> signal_from_name(std::string_view name) {
+  for (Signal s : {Signal::rsq, Signal::resistance, Signal::lockin}) {
+    if (column_name(s) == name) return s;
+  }
+  return std::nullopt;
+}
+
+nlohmann::json optional_json(const std::optional<double>& v) {
+  return v && std::isfinite(*v) ? nlohmann::json(*v) : nlohmann::json(nullptr);
+}
+
+struct FitOutcome {
+  std::string source;
+  Signal signal = Signal::rsq;
+  std::size_t rows = 0;
+  conductance::PreparedSweep prepared;
+  fit::SweepFitResult result;
+};
+
+nlohmann::json to_json(const FitOutcome& o) {
+  const auto& r = o.result;
+  nlohmann::json flags = nlohmann::json::array();
+  for (fit::Flag f : r.flags) flags.push_back(std::string(fit::flag_name(f)));
+  nlohmann::json j;
+  j["model"] = std::string(mc::model_name(r.model));
+  j["input"] = o.source;
+  j["input_column"] = std::string(column_name(o.signal));
+  j["n_rows"] = o.rows;
+  j["lphi_m"] = r.lphi_m;
+  j["lphi_err_m"] = r.lphi_err_m;
+  j["alpha"] = optional_json(r.alpha);
+  j["alpha_err"] = optional_json(r.alpha_err);
+  j["lso_m"] = optional_json(r.lso_m);
+  j["lso_err_m"] = optional_json(r.lso_err_m);
+  j["chi2"] = r.chi2;
+  j["chi2_red"] = r.chi2_red;
+  j["n_points"] = r.n_points;
+  j["field_window_t"] = r.field_window_t;
+  j["b_phi_t"] = r.b_phi_t;
+  j["converged"] = r.converged;
+  j["termination"] = r.termination;
+  j["iterations"] = r.iterations;
+  j["flags"] = flags;
+  j["offset_s"] = r.offset_s;
+  j["offset_err_s"] = r.offset_err_s;
+  j["background_s_per_t2"] = optional_json(r.background_s_per_t2);
+  j["background_err_s_per_t2"] = optional_json(r.background_err_s_per_t2);
+  j["corr_alpha_lphi"] = r.alpha ? nlohmann::json(r.corr_alpha_lphi) : nlohmann::json(nullptr);
+  j["corr_lso_lphi"] = r.lso_m ? nlohmann::json(r.corr_lso_lphi) : nlohmann::json(nullptr);
+  j["sigma0_s"] = o.prepared.sigma0_s;
+  j["sigma0_err_s"] = o.prepared.sigma0_err_s;
+  j["rsq0_ohm"] = o.prepared.rsq0_ohm;
+  j["max_field_t"] = o.prepared.max_field_t;
+  return j;
+}
+
+void print_human(const FitOutcome& o, std::ostream& out) {
+  const auto& r = o.result;
+  out << "lphi fit: " << o.source << " (" << mc::model_name(r.model) << ", from "
+      << column_name(o.signal) << ", " << o.rows << " rows)\n";
+  TextTable t;
+  t.add("L_phi", format_length(r.lphi_m, r.lphi_err_m));
+  if (r.alpha) t.add("alpha", format_with_error(*r.alpha, r.alpha_err, ""));
+  if (r.lso_m) t.add("L_so", format_length(*r.lso_m, r.lso_err_m));
+  t.add("B_phi", format_field_mt(r.b_phi_t));
+  t.add("window", "|B| <= " + format_field_mt(r.field_window_t) + " (data reach " +
+                      format_field_mt(o.prepared.max_field_t) + ")");
+  t.add("points", std::to_string(r.n_points) + " in the window");
+  t.add("chi2_red", format_number(r.chi2_red, 4));
+  // The solver's first sentence ("Function tolerance reached") is enough here.
+  const std::string reason = r.termination.substr(0, r.termination.find('.'));
+  t.add("converged", std::string(r.converged ? "yes" : "NO") + " (" + reason + ", " +
+                         std::to_string(r.iterations) + " iterations)");
+  // R_sq = 1/sigma, so its error is sigma_err / sigma^2.
+  const double s0 = o.prepared.sigma0_s;
+  t.add("R_sq(0)", format_with_error(o.prepared.rsq0_ohm, o.prepared.sigma0_err_s / (s0 * s0),
+                                     "ohm") +
+                       "  (sigma(0) = " + format_number(s0 * 1e3, 6) + " mS)");
+  if (r.alpha && r.alpha_err) t.add("corr(alpha, L_phi)", format_number(r.corr_alpha_lphi, 3));
+  if (r.background_s_per_t2) {
+    t.add("background", format_with_error(*r.background_s_per_t2, r.background_err_s_per_t2,
+                                          "S/T^2"));
+  }
+  std::string flags;
+  for (fit::Flag f : r.flags) flags += (flags.empty() ? "" : ", ") + std::string(fit::flag_name(f));
+  t.add("flags", flags.empty() ? "none" : flags);
+  t.print(out);
+}
+
+}  // namespace
+
+int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
+  auto fail = [&err](const std::string& message) {
+    err << "lphi fit: " << message << '\n';
+    return exit_bad_input;
+  };
+
+  const auto model = model_from_cli_name(rq.model);
+  if (!model) {
+    return fail("unknown model '" + rq.model + "' (choose " + cli_model_list + ")");
+  }
+
+  for (const std::string& problem :
+       {check_positive("--squares", rq.squares), check_positive("--current", rq.current_a),
+        check_positive("--gain", rq.gain), check_positive("--width-m", rq.width_m),
+        check_positive("--thickness-m", rq.thickness_m),
+        check_positive("--mean-free-path-m", rq.mean_free_path_m),
+        check_positive("--window-t", rq.window_t), check_finite("--alpha-fixed", rq.alpha_fixed)}) {
+    if (!problem.empty()) return fail(problem);
+  }
+  if (*model == mc::Model::wire1d && !rq.width_m) {
+    return fail("--model wire1d needs --width-m (the wire's width)");
+  }
+  if (*model == mc::Model::kawabata3d && !rq.thickness_m) {
+    return fail("--model kawabata3d needs --thickness-m (the film's thickness)");
+  }
+  if (rq.alpha_fixed && *model != mc::Model::hln2d) {
+    return fail("--alpha-fixed applies only to --model hln2d");
+  }
+  if (rq.spin_orbit && *model != mc::Model::wire1d) {
+    return fail("--spin-orbit applies only to --model wire1d (hln2d-so always fits L_so)");
+  }
+
+  FitOutcome o;
+  o.source = input_display_name(rq.input_path);
+  std::string text;
+  if (auto s = read_text_input(rq.input_path, text); !s.ok) return fail(s.error);
+  CsvTable table;
+  if (auto s = CsvTable::parse(text, o.source, table); !s.ok) return fail(s.error);
+  o.rows = table.row_count();
+
+  if (!rq.input_column.empty()) {
+    const auto chosen = signal_from_name(rq.input_column);
+    if (!chosen) {
+      return fail("unknown --input-column '" + rq.input_column +
+                  "' (choose rsq_ohm, r_ohm or lockin_x_v)");
+    }
+    o.signal = *chosen;
+  } else if (table.has_column("rsq_ohm")) {
+    o.signal = Signal::rsq;
+  } else if (table.has_column("r_ohm")) {
+    o.signal = Signal::resistance;
+  } else if (table.has_column("lockin_x_v")) {
+    o.signal = Signal::lockin;
+  } else {
+    return fail(o.source +
+                ": missing a signal column: the sweep needs one of rsq_ohm, r_ohm "
+                "(with --squares) or lockin_x_v (with --current and --squares)");
+  }
+  const std::string signal_column(column_name(o.signal));
+  if (o.signal != Signal::rsq && !rq.squares) {
+    return fail("column '" + signal_column +
+                "' needs --squares (L/W between the voltage probes) to give R_sq");
+  }
+  if (o.signal == Signal::lockin && !rq.current_a) {
+    return fail("column 'lockin_x_v' needs --current (the rms excitation current in A)");
+  }
+  if ((rq.gain || rq.current_a) && o.signal != Signal::lockin) {
+    return fail("--current and --gain apply only to the lockin_x_v column (this fit reads '" +
+                signal_column + "'; choose the column with --input-column)");
+  }
+
+  std::vector<double> field_t, signal;
+  if (auto s = table.numeric_column("field_t", field_t); !s.ok) return fail(s.error);
+  if (auto s = table.numeric_column(signal_column, signal); !s.ok) return fail(s.error);
+  if (table.row_count() == 0) return fail(o.source + ": no data rows below the header");
+
+  std::vector<conductance::FieldPoint> points;
+  points.reserve(signal.size());
+  for (std::size_t i = 0; i < signal.size(); ++i) {
+    if (!(signal[i] > 0.0)) {
+      return fail(table.where(i, signal_column) + ": must be positive, got " +
+                  format_number(signal[i], 6));
+    }
+    double rsq = signal[i];
+    if (o.signal == Signal::lockin) {
+      rsq = conductance::resistance_ohm(signal[i], *rq.current_a, rq.gain.value_or(1.0));
+    }
+    if (o.signal != Signal::rsq) rsq = conductance::sheet_resistance_ohm(rsq, *rq.squares);
+    if (!std::isfinite(rsq) || !(rsq > 0.0)) {
+      return fail(table.where(i, signal_column) + ": gives a sheet resistance of " +
+                  format_number(rsq, 6) + " ohm, not a usable value");
+    }
+    points.push_back({field_t[i], rsq});
+  }
+
+  const auto [lowest, highest] = std::minmax_element(field_t.begin(), field_t.end());
+  if (!(*lowest < 0.0 && *highest > 0.0)) {
+    return fail(o.source + " column 'field_t': the sweep never crosses zero field (B from " +
+                format_number(*lowest, 6) + " to " + format_number(*highest, 6) +
+                " T); lphi needs both signs of B to symmetrize");
+  }
+
+  if (auto s = conductance::prepare_sweep(points, o.prepared); !s.ok) {
+    return fail(o.source + ": " + s.error);
+  }
+
+  fit::SweepFitOptions options;
+  options.model = *model;
+  options.geometry.squares = rq.squares.value_or(0.0);
+  options.geometry.width_m = rq.width_m.value_or(0.0);
+  options.geometry.thickness_m = rq.thickness_m.value_or(0.0);
+  options.geometry.mean_free_path_m = rq.mean_free_path_m.value_or(0.0);
+  options.alpha_fixed = rq.alpha_fixed;
+  options.fit_offset = !rq.no_offset;
+  options.fit_background = rq.background;
+  options.wire_spin_orbit = rq.spin_orbit;
+  options.window_t = rq.window_t;
+  o.result = fit::fit_sweep(o.prepared.points, options);
+
+  if (rq.json) {
+    out << to_json(o).dump(2) << '\n';
+  } else {
+    print_human(o, out);
+  }
+  return exit_ok;
+}
+
+void register_fit_command(CLI::App& app, int* exit_code) {
+  auto rq = std::make_shared<FitRequest>();
+  CLI::App* sub = app.add_subcommand(
+      "fit",
+      "Fit one magnetoconductance sweep (CSV with field_t and rsq_ohm, r_ohm or lockin_x_v) "
+      "and print L_phi");
+  sub->add_option("SWEEP.csv", rq->input_path, "the sweep table; - reads standard input")
+      ->required();
+  sub->add_option("--model", rq->model, std::string("the model: ") + cli_model_list)
+      ->capture_default_str();
+  sub->add_option("--input-column", rq->input_column,
+                  "the signal column to use when the table has several "
+                  "(default: rsq_ohm, else r_ohm, else lockin_x_v)");
+  add_optional(sub, "--squares", rq->squares,
+               "number of squares L/W between the voltage probes (needed for r_ohm, lockin_x_v)");
+  add_optional(sub, "--current", rq->current_a, "rms excitation current in A (for lockin_x_v)");
+  add_optional(sub, "--gain", rq->gain, "voltage preamplifier gain (for lockin_x_v; default 1)");
+  add_optional(sub, "--width-m", rq->width_m, "sample width in m (required by wire1d)");
+  add_optional(sub, "--thickness-m", rq->thickness_m,
+               "film thickness in m (required by kawabata3d)");
+  add_optional(sub, "--mean-free-path-m", rq->mean_free_path_m,
+               "elastic mean free path in m: caps the window at the diffusive limit");
+  add_optional(sub, "--alpha-fixed", rq->alpha_fixed, "hold alpha at this value (hln2d)");
+  add_optional(sub, "--window-t", rq->window_t,
+               "fit |B| <= this field in T instead of the automatic window");
+  sub->add_flag("--background", rq->background, "also fit a classical c*B^2 background");
+  sub->add_flag("--no-offset", rq->no_offset, "do not fit a constant offset in Delta sigma");
+  sub->add_flag("--spin-orbit", rq->spin_orbit, "wire1d: also fit the spin-orbit length L_so");
+  sub->add_flag("--json", rq->json, "print one JSON object instead of a table");
+  sub->callback([rq, exit_code] { *exit_code = run_fit(*rq, std::cout, std::cerr); });
+}
+
+}  // namespace lphi::client
