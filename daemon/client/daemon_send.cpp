@@ -1,0 +1,200 @@
+// lphi send: readings from standard input (JSON lines or CSV) to lphid,
+// through the sender library. Waits (retrying, reconnecting) while lphid is
+// down or restarting, and exits 0 only when every reading was acknowledged.
+#include <chrono>
+#include <iostream>
+#include <memory>
+#include <nlohmann/json.hpp>
+#include <sstream>
+#include <string>
+
+#include "daemon/client/csv_table.hpp"
+#include "daemon/client/daemon_locate.hpp"
+#include "daemon/client/exit_codes.hpp"
+#include "daemon/protocol/codec.hpp"
+#include "drivers/sender/sender.hpp"
+
+namespace lphi::client {
+
+namespace {
+
+using nlohmann::json;
+using Clock = std::chrono::steady_clock;
+
+struct SendOptions {
+  std::string data_dir, source, format = "jsonl", encoding = "msgpack";
+  double timeout_s = 0.0;  // 0: no limit
+  std::size_t batch = 2000;
+};
+
+class Feeder {
+ public:
+  Feeder(drivers::Sender& sender, protocol::SourceKind kind, std::int64_t next_seq)
+      : sender_(sender), kind_(kind), next_seq_(next_seq) {}
+
+  // Checks one reading (as a JSON object) like lphid would and spools it.
+  void feed(json reading, const std::string& where) {
+    if (reading.is_object() && !reading.contains("seq")) reading["seq"] = next_seq_;
+    json one = json::array({std::move(reading)});
+    protocol::Readings accepted = protocol::empty_readings(kind_);
+    std::vector<protocol::RejectedReading> rejected;
+    protocol::read_readings(one, kind_, accepted, rejected);
+    if (!rejected.empty()) {
+      std::cerr << where << ": " << protocol::reason_name(rejected[0].reason) << ": "
+                << rejected[0].detail << "\n";
+      ++local_rejections;
+      return;
+    }
+    std::visit(
+        [&](const auto& v) {
+          const auto& r = v.front();
+          if (r.seq >= next_seq_) next_seq_ = r.seq + 1;
+          while (!sender_.offer(r)) sender_.pump(std::chrono::milliseconds(20));
+        },
+        accepted);
+  }
+  std::uint64_t local_rejections = 0;
+
+ private:
+  drivers::Sender& sender_;
+  protocol::SourceKind kind_;
+  std::int64_t next_seq_;
+};
+
+bool feed_jsonl(Feeder& feeder, std::istream& in) {
+  std::string line;
+  std::size_t number = 0;
+  while (std::getline(in, line)) {
+    ++number;
+    if (line.find_first_not_of(" \t\r") == std::string::npos) continue;
+    json reading = json::parse(line, nullptr, false);
+    const std::string where = "stdin line " + std::to_string(number);
+    if (reading.is_discarded()) {
+      std::cerr << where << ": bad_encoding: not valid JSON\n";
+      ++feeder.local_rejections;
+      continue;
+    }
+    feeder.feed(std::move(reading), where);
+  }
+  return true;
+}
+
+bool feed_csv(Feeder& feeder, std::istream& in) {
+  std::ostringstream buffer;
+  buffer << in.rdbuf();
+  const std::string text = buffer.str();
+  CsvTable table;
+  if (auto s = CsvTable::parse(text, "stdin", table); !s.ok) {
+    std::cerr << s.error << "\n";
+    return false;
+  }
+  for (std::size_t row = 0; row < table.row_count(); ++row) {
+    json reading = json::object();
+    for (std::size_t col = 0; col < table.header().size(); ++col) {
+      const std::string& name = table.header()[col];
+      const std::string& cell = table.cell(row, col);
+      if (cell.empty()) continue;  // an optional value left out
+      if (name == "overload") {
+        if (cell == "true" || cell == "1") {
+          reading[name] = true;
+        } else if (cell == "false" || cell == "0") {
+          reading[name] = false;
+        } else {
+          reading[name] = cell;  // refused below as wrong_type
+        }
+        continue;
+      }
+      std::string why;
+      auto v = parse_number(cell, &why);
+      if (!v) {
+        reading[name] = cell;
+      } else if (name == "seq") {
+        reading[name] = static_cast<std::int64_t>(*v);
+        if (static_cast<double>(static_cast<std::int64_t>(*v)) != *v) reading[name] = *v;
+      } else {
+        reading[name] = *v;
+      }
+    }
+    feeder.feed(std::move(reading), "stdin line " + std::to_string(table.line_number(row)));
+  }
+  return true;
+}
+
+}  // namespace
+
+void register_send_command(CLI::App& app, int* exit_code) {
+  auto* cmd = app.add_subcommand("send", "send readings from standard input to lphid");
+  auto opt = std::make_shared<SendOptions>();
+  add_data_dir_option(*cmd, opt->data_dir);
+  cmd->add_option("--source", opt->source, "the configured source the readings come from")->required();
+  cmd->add_option("--format", opt->format, "jsonl (one JSON object per line) or csv")
+      ->check(CLI::IsMember({"jsonl", "csv"}));
+  cmd->add_option("--encoding", opt->encoding, "wire encoding: msgpack or json")
+      ->check(CLI::IsMember({"msgpack", "json"}));
+  cmd->add_option("--timeout", opt->timeout_s, "give up after this many seconds (0: keep trying)")
+      ->check(CLI::NonNegativeNumber);
+  cmd->add_option("--batch", opt->batch, "readings per batch")->check(CLI::Range(1, 100000));
+  cmd->callback([opt, exit_code] {
+    auto dir = locate_data_dir(opt->data_dir);
+    if (!dir) {
+      *exit_code = exit_bad_input;
+      return;
+    }
+    const auto endpoints = config::client_endpoints(*dir);
+    const auto limit = opt->timeout_s > 0 ? std::chrono::milliseconds(static_cast<long>(opt->timeout_s * 1000))
+                                          : std::chrono::milliseconds(std::chrono::hours(24 * 365));
+    const auto deadline = Clock::now() + limit;
+    zmq::context_t context(1);
+    drivers::SenderOptions so;
+    so.endpoint = endpoints.ingest;
+    so.source = opt->source;
+    so.encoding = *protocol::parse_encoding(opt->encoding);
+    so.batch_max_readings = opt->batch;
+    std::optional<protocol::Refusal> refusal;
+    std::optional<protocol::HelloReply> hello;
+    {
+      drivers::Sender probe(context, so);
+      hello = probe.hello(limit, &refusal);
+    }
+    if (!hello) {
+      if (refusal) {
+        std::cerr << "lphi: lphid refuses source \"" << opt->source << "\": "
+                  << protocol::reason_name(refusal->reason) << " (" << refusal->detail << ")\n";
+        *exit_code = exit_bad_input;
+      } else {
+        std::cerr << "lphi: lphid does not answer on " << endpoints.ingest << "\n";
+        *exit_code = exit_unreachable;
+      }
+      return;
+    }
+    so.kind = hello->kind;
+    drivers::Sender sender(context, so);
+    Feeder feeder(sender, hello->kind, hello->next_seq);
+    const bool read_ok = opt->format == "csv" ? feed_csv(feeder, std::cin) : feed_jsonl(feeder, std::cin);
+    const auto left = deadline - Clock::now();
+    const bool done =
+        sender.flush(std::max(std::chrono::duration_cast<std::chrono::milliseconds>(left),
+                              std::chrono::milliseconds(0)));
+    const auto& t = sender.totals();
+    for (const auto& r : t.first_rejections) {
+      std::cerr << "rejected";
+      if (r.seq) std::cerr << " seq " << *r.seq;
+      std::cerr << ": " << protocol::reason_name(r.reason) << ": " << r.detail << "\n";
+    }
+    const std::uint64_t rejected = t.rejected + feeder.local_rejections;
+    std::cout << "accepted " << t.accepted << ", duplicates " << t.duplicates << ", rejected "
+              << rejected;
+    if (!done) std::cout << ", unacknowledged " << sender.unacknowledged();
+    std::cout << "\n";
+    if (!read_ok) {
+      *exit_code = exit_bad_input;
+    } else if (!done) {
+      std::cerr << "lphi: gave up waiting for lphid's acknowledgements\n";
+      *exit_code = exit_unreachable;
+    } else {
+      *exit_code = rejected > 0 ? exit_failure : exit_ok;
+    }
+  });
+}
+
+}  // namespace lphi::client

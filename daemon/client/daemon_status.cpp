@@ -1,0 +1,108 @@
+// lphi status: what lphid reports about itself, its sources and its writer.
+#include <chrono>
+#include <cstdio>
+#include <iostream>
+#include <nlohmann/json.hpp>
+#include <zmq.hpp>
+
+#include "daemon/client/daemon_locate.hpp"
+#include "daemon/client/exit_codes.hpp"
+
+namespace lphi::client {
+
+namespace {
+
+using nlohmann::json;
+
+std::string fixed(double v, int digits) {
+  char buf[64];
+  std::snprintf(buf, sizeof buf, "%.*f", digits, v);
+  return buf;
+}
+
+std::string value_or_dash(const json& v, int digits) {
+  return v.is_number() ? fixed(v.get<double>(), digits) : std::string("-");
+}
+
+void print_human(const json& s) {
+  std::cout << "lphid pid " << s.value("pid", 0) << ", up " << fixed(s.value("uptime_s", 0.0), 0)
+            << " s, database " << fixed(static_cast<double>(s.value("database_bytes", 0)) / 1e6, 1) << " MB\n";
+  const auto& w = s.at("writer");
+  std::cout << "writer: " << w.value("queued_readings", 0) << " readings queued, lag "
+            << fixed(w.value("lag_s", 0.0), 3) << " s, " << w.value("commits", 0) << " commits, p99.9 "
+            << fixed(w.value("commit_p999_s", 0.0) * 1e3, 2) << " ms"
+            << (w.value("backpressure", false) ? ", back-pressure ON" : "") << "\n";
+  const auto& c = s.at("counters");
+  std::cout << "readings: " << c.value("accepted", 0) << " accepted, " << c.value("duplicates", 0)
+            << " duplicates, " << c.value("gaps", 0) << " gaps\n";
+  for (const char* group : {"rejected_readings", "refused_messages"}) {
+    if (c.contains(group) && !c.at(group).empty()) {
+      std::cout << (std::string(group) == "rejected_readings" ? "rejected readings:" : "refused messages:");
+      for (const auto& [reason, n] : c.at(group).items()) std::cout << " " << reason << "=" << n;
+      std::cout << "\n";
+    }
+  }
+  std::printf("%-20s %-12s %14s %10s %10s %12s\n", "source", "kind", "last t", "age s", "rate/s", "accepted");
+  for (const auto& src : s.at("sources")) {
+    std::printf("%-20s %-12s %14s %10s %10s %12llu\n", src.value("name", "").c_str(),
+                src.value("kind", "").c_str(), value_or_dash(src.at("last_t"), 3).c_str(),
+                value_or_dash(src.at("age_s"), 1).c_str(), fixed(src.value("rate_per_s", 0.0), 1).c_str(),
+                static_cast<unsigned long long>(src.value("accepted", std::uint64_t{0})));
+  }
+}
+
+}  // namespace
+
+void register_status_command(CLI::App& app, int* exit_code) {
+  auto* cmd = app.add_subcommand("status", "show lphid's uptime, sources, counters and writer lag");
+  struct Options {
+    std::string data_dir;
+    bool json = false;
+    double timeout_s = 5.0;
+  };
+  auto opt = std::make_shared<Options>();
+  add_data_dir_option(*cmd, opt->data_dir);
+  cmd->add_flag("--json", opt->json, "print lphid's status as JSON");
+  cmd->add_option("--timeout", opt->timeout_s, "seconds to wait for lphid")->check(CLI::PositiveNumber);
+  cmd->callback([opt, exit_code] {
+    auto dir = locate_data_dir(opt->data_dir);
+    if (!dir) {
+      *exit_code = exit_bad_input;
+      return;
+    }
+    const auto endpoints = config::client_endpoints(*dir);
+    zmq::context_t context(1);
+    zmq::socket_t socket(context, zmq::socket_type::dealer);
+    socket.set(zmq::sockopt::linger, 0);
+    socket.connect(endpoints.control);
+    socket.send(zmq::str_buffer(R"({"type":"status"})"), zmq::send_flags::none);
+    zmq::pollitem_t item{socket.handle(), 0, ZMQ_POLLIN, 0};
+    zmq::poll(&item, 1, std::chrono::milliseconds(static_cast<long>(opt->timeout_s * 1000)));
+    zmq::message_t reply;
+    if (!(item.revents & ZMQ_POLLIN) || !socket.recv(reply, zmq::recv_flags::dontwait)) {
+      std::cerr << "lphi: lphid does not answer on " << endpoints.control << "\n";
+      *exit_code = exit_unreachable;
+      return;
+    }
+    auto status = json::parse(reply.to_string_view(), nullptr, false);
+    if (!status.is_object() || status.value("type", "") != "status") {
+      std::cerr << "lphi: lphid sent an unexpected reply\n";
+      *exit_code = exit_failure;
+      return;
+    }
+    if (opt->json) {
+      std::cout << status.dump(2) << "\n";
+    } else {
+      try {
+        print_human(status);
+      } catch (const json::exception& e) {
+        std::cerr << "lphi: lphid's status is incomplete: " << e.what() << "\n";
+        *exit_code = exit_failure;
+        return;
+      }
+    }
+    *exit_code = exit_ok;
+  });
+}
+
+}  // namespace lphi::client

@@ -1,0 +1,301 @@
+#include "daemon/config/config.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <fstream>
+#include <functional>
+#include <map>
+#include <set>
+#include <sstream>
+#include <toml++/toml.h>
+
+namespace lphi::config {
+
+namespace {
+
+using Handler = std::function<void(const toml::node&, const std::string& key)>;
+
+class Checker {
+ public:
+  std::vector<ConfigError> errors;
+
+  void fail(const toml::node& node, const std::string& key, std::string message) {
+    errors.push_back({node.source().begin.line, key, std::move(message)});
+  }
+
+  // Visits every key of `table`: known ones through their handler, the rest as errors.
+  void table(const toml::table& tbl, const std::string& prefix,
+             const std::map<std::string, Handler>& handlers) {
+    for (auto&& [key, node] : tbl) {
+      const std::string name(key.str());
+      const std::string dotted = prefix.empty() ? name : prefix + "." + name;
+      auto it = handlers.find(name);
+      if (it == handlers.end()) {
+        errors.push_back({key.source().begin.line != 0 ? key.source().begin.line
+                                                       : node.source().begin.line,
+                          dotted, "unknown key"});
+        continue;
+      }
+      it->second(node, dotted);
+    }
+  }
+
+  Handler string_to(std::string& out, std::set<std::string> allowed = {}) {
+    return [this, &out, allowed](const toml::node& n, const std::string& key) {
+      if (!n.is_string()) return fail(n, key, "must be a string");
+      const std::string value = n.as_string()->get();
+      if (!allowed.empty() && allowed.count(value) == 0) {
+        std::string list;
+        for (const auto& a : allowed) list += (list.empty() ? "" : ", ") + a;
+        return fail(n, key, "must be one of " + list + ", not \"" + value + "\"");
+      }
+      out = value;
+    };
+  }
+
+  Handler integer_to(std::int64_t& out, std::int64_t min, std::int64_t max) {
+    return [this, &out, min, max](const toml::node& n, const std::string& key) {
+      if (!n.is_integer()) return fail(n, key, "must be an integer");
+      const std::int64_t v = n.as_integer()->get();
+      if (v < min || v > max) {
+        return fail(n, key, "must lie between " + std::to_string(min) + " and " + std::to_string(max));
+      }
+      out = v;
+    };
+  }
+
+  Handler size_to(std::size_t& out, std::int64_t min, std::int64_t max) {
+    return [this, &out, min, max](const toml::node& n, const std::string& key) {
+      std::int64_t v = 0;
+      std::size_t before = errors.size();
+      integer_to(v, min, max)(n, key);
+      if (errors.size() == before) out = static_cast<std::size_t>(v);
+    };
+  }
+
+  std::optional<double> number(const toml::node& n, const std::string& key) {
+    double v = 0.0;
+    if (n.is_floating_point()) {
+      v = n.as_floating_point()->get();
+    } else if (n.is_integer()) {
+      v = static_cast<double>(n.as_integer()->get());
+    } else {
+      fail(n, key, "must be a number");
+      return std::nullopt;
+    }
+    if (!std::isfinite(v)) {
+      fail(n, key, "must be finite");
+      return std::nullopt;
+    }
+    return v;
+  }
+
+  Handler positive_to(double& out) {
+    return [this, &out](const toml::node& n, const std::string& key) {
+      auto v = number(n, key);
+      if (!v) return;
+      if (!(*v > 0.0)) return fail(n, key, "must be positive");
+      out = *v;
+    };
+  }
+
+  Handler optional_positive_to(std::optional<double>& out) {
+    return [this, &out](const toml::node& n, const std::string& key) {
+      auto v = number(n, key);
+      if (!v) return;
+      if (!(*v > 0.0)) return fail(n, key, "must be positive");
+      out = *v;
+    };
+  }
+
+  Handler optional_number_to(std::optional<double>& out) {
+    return [this, &out](const toml::node& n, const std::string& key) {
+      if (auto v = number(n, key)) out = *v;
+    };
+  }
+
+  // An array of tables, e.g. [[source]]; `each` handles one element.
+  Handler array_of_tables(std::function<void(const toml::table&, const std::string&)> each) {
+    return [this, each](const toml::node& n, const std::string& key) {
+      const auto* array = n.as_array();
+      if (array == nullptr) return fail(n, key, "must be written as [[" + key + "]] tables");
+      std::size_t i = 0;
+      for (const auto& element : *array) {
+        const std::string at = key + "[" + std::to_string(i++) + "]";
+        if (const auto* t = element.as_table()) {
+          each(*t, at);
+        } else {
+          fail(element, at, "must be a table");
+        }
+      }
+    };
+  }
+
+  Handler sub_table(std::function<void(const toml::table&, const std::string&)> each) {
+    return [this, each](const toml::node& n, const std::string& key) {
+      const auto* t = n.as_table();
+      if (t == nullptr) return fail(n, key, "must be a table ([" + key + "])");
+      each(*t, key);
+    };
+  }
+
+  // Reports required keys that a table lacks.
+  void require(const toml::table& tbl, const std::string& prefix,
+               std::initializer_list<const char*> keys) {
+    for (const char* k : keys) {
+      if (!tbl.contains(k)) {
+        errors.push_back({tbl.source().begin.line, prefix + "." + k, "is required"});
+      }
+    }
+  }
+};
+
+}  // namespace
+
+const SourceConfig* Config::find_source(std::string_view name) const {
+  for (const auto& s : sources) {
+    if (s.name == name) return &s;
+  }
+  return nullptr;
+}
+
+std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
+  Config config;
+  Checker c;
+  toml::table root;
+  try {
+    root = toml::parse(text);
+  } catch (const toml::parse_error& e) {
+    return {{e.source().begin.line, "", std::string(e.description())}};
+  }
+  std::string synchronous = "normal";
+  std::vector<std::size_t> source_lines, sample_lines;
+  c.table(root, "",
+          {
+              {"daemon", c.sub_table([&](const toml::table& t, const std::string& p) {
+                 c.table(t, p,
+                         {{"log_level", c.string_to(config.log_level,
+                                                    {"trace", "debug", "info", "warn", "error"})},
+                          {"ingest_endpoint", c.string_to(config.ingest_endpoint)},
+                          {"control_endpoint", c.string_to(config.control_endpoint)}});
+               })},
+              {"store", c.sub_table([&](const toml::table& t, const std::string& p) {
+                 c.table(t, p,
+                         {{"synchronous", c.string_to(synchronous, {"normal", "full"})},
+                          {"commit_max_readings", c.integer_to(config.commit_max_readings, 1, 10000000)},
+                          {"commit_max_ms", c.integer_to(config.commit_max_ms, 1, 60000)},
+                          {"queue_max_readings", c.integer_to(config.queue_max_readings, 1, 100000000)},
+                          {"checkpoint_interval_ms",
+                           c.integer_to(config.checkpoint_interval_ms, 10, 3600000)}});
+               })},
+              {"ingest", c.sub_table([&](const toml::table& t, const std::string& p) {
+                 c.table(t, p,
+                         {{"max_frame_bytes", c.size_to(config.limits.max_frame_bytes, 1024, 256 << 20)},
+                          {"max_batch_readings", c.size_to(config.limits.max_batch_readings, 1, 1000000)},
+                          {"max_name_bytes", c.size_to(config.limits.max_name_bytes, 1, 4096)},
+                          {"time_backward_tolerance_s", c.positive_to(config.time_backward_tolerance_s)},
+                          {"time_future_tolerance_s", c.positive_to(config.time_future_tolerance_s)}});
+               })},
+              {"source", c.array_of_tables([&](const toml::table& t, const std::string& p) {
+                 SourceConfig s;
+                 std::string kind;
+                 c.table(t, p,
+                         {{"name", c.string_to(s.name)},
+                          {"kind", c.string_to(kind, {"lockin", "thermometer", "field"})}});
+                 c.require(t, p, {"name", "kind"});
+                 if (auto k = protocol::parse_kind(kind)) s.kind = *k;
+                 config.sources.push_back(s);
+                 source_lines.push_back(t.source().begin.line);
+               })},
+              {"sample", c.array_of_tables([&](const toml::table& t, const std::string& p) {
+                 SampleConfig s;
+                 c.table(t, p,
+                         {{"name", c.string_to(s.name)},
+                          {"model", c.string_to(s.model, {"hln2d", "hln2d-so", "wire1d", "kawabata3d"})},
+                          {"squares", c.positive_to(s.squares)},
+                          {"width_m", c.positive_to(s.width_m)},
+                          {"thickness_m", c.positive_to(s.thickness_m)},
+                          {"excitation_a", c.positive_to(s.excitation_a)},
+                          {"lockin", c.string_to(s.lockin)},
+                          {"thermometer", c.string_to(s.thermometer)},
+                          {"field", c.string_to(s.field)},
+                          {"gain", c.optional_positive_to(s.gain)},
+                          {"diffusion_m2s", c.optional_positive_to(s.diffusion_m2s)},
+                          {"mean_free_path_m", c.optional_positive_to(s.mean_free_path_m)},
+                          {"alpha_fixed", c.optional_number_to(s.alpha_fixed)}});
+                 c.require(t, p,
+                           {"name", "model", "squares", "width_m", "thickness_m", "excitation_a",
+                            "lockin", "thermometer", "field"});
+                 config.samples.push_back(s);
+                 sample_lines.push_back(t.source().begin.line);
+               })},
+          });
+  config.synchronous_full = synchronous == "full";
+
+  // Cross-checks: unique, well-formed names; samples refer to sources of the right kind.
+  std::set<std::string> seen;
+  for (std::size_t i = 0; i < config.sources.size(); ++i) {
+    const auto& s = config.sources[i];
+    const std::string key = "source[" + std::to_string(i) + "].name";
+    if (s.name.empty()) continue;  // reported as required
+    if (auto bad = protocol::check_name(s.name, config.limits)) {
+      c.errors.push_back({source_lines[i], key, bad->detail});
+    } else if (!seen.insert(s.name).second) {
+      c.errors.push_back({source_lines[i], key, "source \"" + s.name + "\" is defined twice"});
+    }
+  }
+  std::set<std::string> sample_names;
+  for (std::size_t i = 0; i < config.samples.size(); ++i) {
+    const auto& s = config.samples[i];
+    const std::string p = "sample[" + std::to_string(i) + "]";
+    if (!s.name.empty() && !sample_names.insert(s.name).second) {
+      c.errors.push_back({sample_lines[i], p + ".name", "sample \"" + s.name + "\" is defined twice"});
+    }
+    auto check_ref = [&](const std::string& name, protocol::SourceKind kind, const char* key) {
+      if (name.empty()) return;
+      const SourceConfig* src = config.find_source(name);
+      if (src == nullptr) {
+        c.errors.push_back({sample_lines[i], p + "." + key, "names no [[source]]: \"" + name + "\""});
+      } else if (src->kind != kind) {
+        c.errors.push_back({sample_lines[i], p + "." + key,
+                            "source \"" + name + "\" is a " + std::string(protocol::kind_name(src->kind)) +
+                                ", not a " + std::string(protocol::kind_name(kind))});
+      }
+    };
+    check_ref(s.lockin, protocol::SourceKind::lockin, "lockin");
+    check_ref(s.thermometer, protocol::SourceKind::thermometer, "thermometer");
+    check_ref(s.field, protocol::SourceKind::field, "field");
+  }
+  for (const auto* endpoint : {&config.ingest_endpoint, &config.control_endpoint}) {
+    if (!endpoint->empty() && endpoint->rfind("ipc://", 0) != 0 && endpoint->rfind("tcp://", 0) != 0) {
+      c.errors.push_back({0, endpoint == &config.ingest_endpoint ? "daemon.ingest_endpoint"
+                                                                 : "daemon.control_endpoint",
+                          "must start with ipc:// or tcp://"});
+    }
+  }
+  std::stable_sort(c.errors.begin(), c.errors.end(),
+                   [](const ConfigError& a, const ConfigError& b) { return a.line < b.line; });
+  if (c.errors.empty()) out = std::move(config);
+  return c.errors;
+}
+
+std::vector<ConfigError> load_config_file(const std::string& path, Config& out) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return {{0, "", "cannot read the file"}};
+  std::ostringstream text;
+  text << in.rdbuf();
+  if (in.bad()) return {{0, "", "cannot read the file"}};
+  return parse_config(text.str(), out);
+}
+
+std::string format_error(std::string_view file, const ConfigError& e) {
+  std::ostringstream s;
+  s << file;
+  if (e.line != 0) s << ':' << e.line;
+  s << ": ";
+  if (!e.key.empty()) s << e.key << ": ";
+  s << e.message;
+  return s.str();
+}
+
+}  // namespace lphi::config

@@ -1,0 +1,60 @@
+#include "daemon/config/config.hpp"
+
+namespace lphi::config {
+
+std::string_view example_config() {
+  return R"toml(# lphid configuration (TOML). Unknown keys are errors.
+# Check a file with: lphid --check-config FILE
+
+[daemon]
+log_level = "info"          # trace | debug | info | warn | error
+# Endpoints default to ipc:// sockets inside the data directory (mode 0660).
+# tcp:// may be given instead, e.g. "tcp://127.0.0.1:5555".
+ingest_endpoint = ""        # "" means ipc://DATA_DIR/ingest.sock
+control_endpoint = ""       # "" means ipc://DATA_DIR/control.sock
+
+[store]
+synchronous = "normal"      # normal: survives a crash of lphid; full: also a power cut
+commit_max_readings = 20000 # a transaction holds at most this many readings
+commit_max_ms = 50          # ... and is open at most this long
+queue_max_readings = 200000 # readings waiting for the writer; beyond this, no acks (back-pressure)
+checkpoint_interval_ms = 500
+
+[ingest]
+max_frame_bytes = 4194304   # larger messages are refused (frame_too_large)
+max_batch_readings = 10000  # larger batches are refused (batch_too_large)
+max_name_bytes = 64
+time_backward_tolerance_s = 60.0   # t may run back this far behind a source's last reading
+time_future_tolerance_s = 86400.0  # t may lie this far ahead of lphid's clock
+
+[[source]]
+name = "lockin-a"
+kind = "lockin"             # lockin | thermometer | field
+
+[[source]]
+name = "mxc"
+kind = "thermometer"
+
+[[source]]
+name = "magnet"
+kind = "field"
+
+[[sample]]
+name = "film-a"
+model = "hln2d"             # hln2d | hln2d-so | wire1d | kawabata3d
+squares = 5.0               # length/width between the voltage probes
+width_m = 20e-6
+thickness_m = 10e-9
+excitation_a = 10e-9        # rms current
+lockin = "lockin-a"
+thermometer = "mxc"
+field = "magnet"
+# optional:
+# gain = 100.0              # preamplifier gain, divided out of x_v and y_v
+# diffusion_m2s = 1e-3
+# mean_free_path_m = 5e-9
+# alpha_fixed = -0.5
+)toml";
+}
+
+}  // namespace lphi::config

@@ -1,0 +1,461 @@
+#include "daemon/ingest/ingest_server.hpp"
+
+#include <spdlog/spdlog.h>
+#include <sys/eventfd.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+
+#include "daemon/store/database.hpp"
+
+namespace lphi::ingest {
+
+using nlohmann::json;
+using protocol::Reason;
+
+namespace {
+
+double unix_now() {
+  return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
+}
+
+std::int64_t file_size(const std::string& path) {
+  struct stat st {};
+  if (::stat(path.c_str(), &st) != 0) return 0;
+  return static_cast<std::int64_t>(st.st_size);
+}
+
+// Warnings about refused input are limited so that a hostile sender cannot
+// flood the log; the counters keep the full story.
+class LogLimiter {
+ public:
+  bool allow(double now) {
+    if (now - window_start_ >= 1.0) {
+      window_start_ = now;
+      if (suppressed_ > 0) spdlog::warn("{} more refusals in the last second were not logged", suppressed_);
+      in_window_ = 0;
+      suppressed_ = 0;
+    }
+    if (in_window_ < 10) {
+      ++in_window_;
+      return true;
+    }
+    ++suppressed_;
+    return false;
+  }
+
+ private:
+  double window_start_ = 0.0;
+  int in_window_ = 0;
+  int suppressed_ = 0;
+};
+LogLimiter log_limiter;
+
+constexpr int receive_high_water_mark = 64;
+constexpr int hard_max_message_bytes = 256 << 20;
+
+}  // namespace
+
+IngestServer::IngestServer(zmq::context_t& context, const IngestOptions& options,
+                           store::StoreWriter& writer)
+    : context_(context),
+      options_(options),
+      writer_(writer),
+      ingest_(context, zmq::socket_type::router),
+      control_(context, zmq::socket_type::router) {}
+
+IngestServer::~IngestServer() {
+  if (wake_fd_ >= 0) ::close(wake_fd_);
+}
+
+store::Status IngestServer::create(zmq::context_t& context, const IngestOptions& options,
+                                   store::StoreWriter& writer,
+                                   const std::map<std::string, store::SourceState>& sources,
+                                   std::unique_ptr<IngestServer>& out) {
+  std::unique_ptr<IngestServer> s(new IngestServer(context, options, writer));
+  s->started_unix_ = unix_now();
+  for (const auto& [name, state] : sources) {
+    auto rt = std::make_unique<SourceRuntime>();
+    rt->state = state;
+    rt->name = name;
+    rt->validated_seq = state.highest_seq;
+    rt->validated_t = state.last_t;
+    rt->durable_seq = state.highest_seq;
+    rt->last_t = state.last_t;
+    s->sources_[name] = std::move(rt);
+  }
+  s->wake_fd_ = ::eventfd(0, EFD_NONBLOCK | EFD_CLOEXEC);
+  if (s->wake_fd_ < 0) return store::Status::failure("cannot create an eventfd");
+  try {
+    for (auto* socket : {&s->ingest_, &s->control_}) {
+      socket->set(zmq::sockopt::linger, 0);
+      socket->set(zmq::sockopt::rcvhwm, receive_high_water_mark);
+      socket->set(zmq::sockopt::maxmsgsize, std::int64_t{hard_max_message_bytes});
+    }
+    for (const auto& [socket, endpoint] :
+         {std::pair{&s->ingest_, options.endpoints.ingest},
+          std::pair{&s->control_, options.endpoints.control}}) {
+      if (auto e = config::prepare_ipc_endpoint(endpoint)) return store::Status::failure(*e);
+      socket->bind(endpoint);
+      if (auto e = config::restrict_ipc_endpoint(endpoint)) return store::Status::failure(*e);
+    }
+  } catch (const zmq::error_t& e) {
+    return store::Status::failure(std::string("cannot bind the ingest/control sockets: ") + e.what());
+  }
+  out = std::move(s);
+  return store::Status::success();
+}
+
+void IngestServer::run(const std::atomic<bool>& stop) {
+  double last_tick = 0.0;
+  while (!stop.load()) {
+    zmq::pollitem_t items[] = {
+        {ingest_.handle(), 0, ZMQ_POLLIN, 0},
+        {control_.handle(), 0, ZMQ_POLLIN, 0},
+        {nullptr, wake_fd_, ZMQ_POLLIN, 0},
+    };
+    // While a batch waits for room in the writer's queue, the ingest socket
+    // is not read: that is the back-pressure.
+    if (held_) items[0].events = 0;
+    try {
+      zmq::poll(items, 3, std::chrono::milliseconds(held_ ? 5 : 100));
+    } catch (const zmq::error_t& e) {
+      if (e.num() == EINTR) continue;
+      spdlog::error("poll failed: {}", e.what());
+      break;
+    }
+    if (items[2].revents & ZMQ_POLLIN) {
+      std::uint64_t n = 0;
+      [[maybe_unused]] auto r = ::read(wake_fd_, &n, sizeof n);
+    }
+    drain_completions();
+    if (held_ && submit(*held_)) held_.reset();
+    // Bounded work per wake-up so the control socket and the acks stay responsive.
+    for (int i = 0; i < 64 && !held_ && (items[0].revents & ZMQ_POLLIN); ++i) {
+      if (!(ingest_.get(zmq::sockopt::events) & ZMQ_POLLIN)) break;
+      on_ingest_message();
+    }
+    for (int i = 0; i < 16 && (control_.get(zmq::sockopt::events) & ZMQ_POLLIN); ++i) {
+      on_control_message();
+    }
+    const double now = unix_now();
+    if (now - last_tick >= 1.0) {
+      last_tick = now;
+      for (auto& [name, s] : sources_) s->rate.sample(now, s->accepted);
+    }
+  }
+  spdlog::info("stopping: writing what is queued");
+  if (held_) {
+    refuse(held_->peer, held_->ack.batch_id, Reason::shutting_down, "lphid is stopping");
+    held_.reset();
+  }
+  writer_.stop();
+  drain_completions();
+}
+
+void IngestServer::on_ingest_message() {
+  std::vector<zmq::message_t> frames;
+  while (true) {
+    zmq::message_t frame;
+    if (!ingest_.recv(frame, zmq::recv_flags::dontwait)) break;
+    const bool more = frame.more();
+    if (frames.size() < 8) frames.push_back(std::move(frame));
+    if (!more) break;
+  }
+  if (frames.empty()) return;
+  Peer peer;
+  peer.identity = frames[0].to_string();
+  std::string_view payload;
+  if (frames.size() == 2) {
+    payload = frames[1].to_string_view();
+  } else if (frames.size() == 3 && frames[1].size() == 0) {
+    peer.delimiter = true;
+    payload = frames[2].to_string_view();
+  } else {
+    peer.delimiter = frames.size() > 1 && frames[1].size() == 0;
+    refuse(peer, std::nullopt, Reason::bad_envelope,
+           "a message is one frame (after the REQ delimiter, if any), not " +
+               std::to_string(frames.size() - 1));
+    return;
+  }
+  handle_request(peer, payload);
+}
+
+void IngestServer::handle_request(const Peer& in, std::string_view payload) {
+  Peer peer = in;
+  json message;
+  auto bad = protocol::decode_frame(payload, options_.limits, message, peer.encoding);
+  if (bad) return refuse(peer, std::nullopt, bad->reason, bad->detail);
+  protocol::RequestType type{};
+  if (auto r = protocol::read_request_type(message, type)) {
+    return refuse(peer, std::nullopt, r->reason, r->detail);
+  }
+  if (type == protocol::RequestType::hello) return handle_hello(peer, message);
+  handle_batch(peer, message);
+}
+
+void IngestServer::handle_hello(const Peer& peer, const json& message) {
+  protocol::HelloRequest hello;
+  if (auto r = protocol::read_hello(message, options_.limits, hello)) {
+    return refuse(peer, std::nullopt, r->reason, r->detail);
+  }
+  auto it = sources_.find(hello.source);
+  if (it == sources_.end()) {
+    return refuse(peer, std::nullopt, Reason::unknown_source,
+                  "source \"" + hello.source + "\" is not in lphid's configuration");
+  }
+  const auto& s = *it->second;
+  reply(ingest_, peer,
+        protocol::hello_reply_message(
+            {s.name, s.state.kind, s.durable_seq ? *s.durable_seq + 1 : std::int64_t{0}}));
+}
+
+void IngestServer::handle_batch(const Peer& peer, const json& message) {
+  protocol::BatchHeader header;
+  if (auto r = protocol::read_batch_header(message, options_.limits, header)) {
+    std::optional<std::uint64_t> id;
+    if (auto b = message.find("batch"); b != message.end() && b->is_number_unsigned()) {
+      id = b->get<std::uint64_t>();
+    }
+    return refuse(peer, id, r->reason, r->detail);
+  }
+  auto it = sources_.find(header.source);
+  if (it == sources_.end()) {
+    return refuse(peer, header.batch_id, Reason::unknown_source,
+                  "source \"" + header.source + "\" is not in lphid's configuration");
+  }
+  SourceRuntime& source = *it->second;
+  if (header.kind && *header.kind != source.state.kind) {
+    return refuse(peer, header.batch_id, Reason::wrong_kind,
+                  "source \"" + source.name + "\" is a " +
+                      std::string(protocol::kind_name(source.state.kind)) + ", the batch says " +
+                      std::string(protocol::kind_name(*header.kind)));
+  }
+  Held held;
+  held.peer = peer;
+  held.source = &source;
+  held.ack.batch_id = header.batch_id;
+  held.ack.source = source.name;
+  held.job.source_id = source.state.id;
+  held.job.readings = protocol::empty_readings(source.state.kind);
+  protocol::read_readings(*header.readings, source.state.kind, held.job.readings, held.ack.rejected);
+
+  // The checks that need the source's history: a new reading's time may not
+  // run back beyond the tolerance; no reading may lie far in the future.
+  const double now = unix_now();
+  source.last_arrival_unix = now;
+  // Positions of the readings that passed, in the batch's readings array.
+  std::vector<std::size_t> position;
+  position.reserve(protocol::reading_count(held.job.readings));
+  for (std::size_t i = 0, r = 0; i < header.readings->size(); ++i) {
+    if (r < held.ack.rejected.size() && held.ack.rejected[r].index == i) {
+      ++r;
+    } else {
+      position.push_back(i);
+    }
+  }
+  std::visit(
+      [&](auto& readings) {
+        std::size_t kept = 0;
+        std::size_t index = 0;
+        for (auto& r : readings) {
+          std::optional<std::string> why;
+          if (r.t > now + options_.time_future_tolerance_s) {
+            why = "t lies " + std::to_string(r.t - now) + " s ahead of lphid's clock";
+          } else if ((!source.validated_seq || r.seq > *source.validated_seq) && source.validated_t &&
+                     r.t < *source.validated_t - options_.time_backward_tolerance_s) {
+            why = "t runs " + std::to_string(*source.validated_t - r.t) +
+                  " s back behind the source's previous reading";
+          }
+          if (why) {
+            protocol::RejectedReading rej;
+            rej.index = position[index];
+            rej.seq = r.seq;
+            rej.reason = Reason::time_out_of_range;
+            rej.detail = *why;
+            held.ack.rejected.push_back(std::move(rej));
+          } else {
+            if (!source.validated_seq || r.seq > *source.validated_seq) {
+              source.validated_seq = r.seq;
+              source.validated_t = r.t;
+            }
+            if (!held.newest_t || r.t > *held.newest_t) held.newest_t = r.t;
+            readings[kept++] = r;
+          }
+          ++index;
+        }
+        readings.resize(kept);
+      },
+      held.job.readings);
+  std::sort(held.ack.rejected.begin(), held.ack.rejected.end(),
+            [](const auto& a, const auto& b) { return a.index < b.index; });
+  for (const auto& r : held.ack.rejected) counters_.rejected_readings.add(r.reason);
+  source.rejected += held.ack.rejected.size();
+  if (!held.ack.rejected.empty() && log_limiter.allow(now)) {
+    spdlog::warn("source {}: {} of {} readings refused, first: {} ({})", source.name,
+                 held.ack.rejected.size(), header.readings->size(),
+                 protocol::reason_name(held.ack.rejected.front().reason),
+                 held.ack.rejected.front().detail);
+  }
+  ++counters_.batches;
+  if (protocol::reading_count(held.job.readings) == 0) {
+    // Nothing to store: the answer needs no commit.
+    reply(ingest_, peer, protocol::ack_message(held.ack));
+    return;
+  }
+  if (!submit(held)) {
+    ++counters_.backpressure_waits;
+    held_ = std::move(held);
+  }
+}
+
+bool IngestServer::submit(Held& held) {
+  Completion completion;
+  completion.peer = held.peer;
+  completion.ack = held.ack;
+  completion.source = held.source;
+  completion.newest_t = held.newest_t;
+  store::WriteJob job;
+  job.source_id = held.job.source_id;
+  job.readings = std::move(held.job.readings);
+  job.on_durable = [this, completion = std::move(completion)](const store::WriteResult& result) mutable {
+    completion.result = result;
+    {
+      std::lock_guard lock(completions_mutex_);
+      completions_.push_back(std::move(completion));
+    }
+    const std::uint64_t one = 1;
+    [[maybe_unused]] auto r = ::write(wake_fd_, &one, sizeof one);
+  };
+  if (writer_.try_submit(job)) return true;
+  held.job.readings = std::move(job.readings);
+  return false;
+}
+
+void IngestServer::drain_completions() {
+  std::vector<Completion> done;
+  {
+    std::lock_guard lock(completions_mutex_);
+    done.swap(completions_);
+  }
+  for (auto& c : done) finish(c);
+}
+
+void IngestServer::finish(Completion& c) {
+  SourceRuntime& s = *c.source;
+  if (!c.result.status) {
+    spdlog::error("source {}: a write failed: {}", s.name, c.result.status.message);
+    counters_.refused_messages.add(Reason::storage_error);
+    // The readings passed validation but are not stored: allow them again.
+    s.validated_seq = s.durable_seq;
+    s.validated_t = s.last_t;
+    refuse(c.peer, c.ack.batch_id, Reason::storage_error, "the database refused the write");
+    return;
+  }
+  c.ack.accepted = c.result.accepted;
+  c.ack.duplicates = c.result.duplicates;
+  c.ack.durable_through = c.result.durable_through;
+  counters_.accepted += c.result.accepted;
+  counters_.duplicates += c.result.duplicates;
+  counters_.gaps += c.result.gaps_recorded;
+  s.accepted += c.result.accepted;
+  s.duplicates += c.result.duplicates;
+  if (c.result.durable_through && (!s.durable_seq || *c.result.durable_through > *s.durable_seq)) {
+    s.durable_seq = c.result.durable_through;
+  }
+  if (c.newest_t && (!s.last_t || *c.newest_t > *s.last_t)) s.last_t = c.newest_t;
+  if (c.result.gaps_recorded > 0) {
+    spdlog::warn("source {}: {} gap(s) in the sequence numbers recorded", s.name, c.result.gaps_recorded);
+  }
+  reply(ingest_, c.peer, protocol::ack_message(c.ack));
+}
+
+void IngestServer::refuse(const Peer& peer, std::optional<std::uint64_t> batch_id, Reason reason,
+                          const std::string& detail) {
+  counters_.refused_messages.add(reason);
+  if (log_limiter.allow(unix_now())) {
+    spdlog::warn("message refused: {} ({})", protocol::reason_name(reason), detail);
+  }
+  reply(ingest_, peer, protocol::error_message({batch_id, reason, detail}));
+}
+
+void IngestServer::reply(zmq::socket_t& socket, const Peer& peer, const json& message) {
+  const std::string payload = protocol::encode_frame(message, peer.encoding);
+  try {
+    socket.send(zmq::buffer(peer.identity), zmq::send_flags::sndmore | zmq::send_flags::dontwait);
+    if (peer.delimiter) socket.send(zmq::message_t(), zmq::send_flags::sndmore | zmq::send_flags::dontwait);
+    socket.send(zmq::buffer(payload), zmq::send_flags::dontwait);
+  } catch (const zmq::error_t& e) {
+    spdlog::debug("a reply could not be sent: {}", e.what());
+  }
+}
+
+void IngestServer::on_control_message() {
+  std::vector<zmq::message_t> frames;
+  while (true) {
+    zmq::message_t frame;
+    if (!control_.recv(frame, zmq::recv_flags::dontwait)) break;
+    const bool more = frame.more();
+    if (frames.size() < 8) frames.push_back(std::move(frame));
+    if (!more) break;
+  }
+  if (frames.size() < 2) return;
+  Peer peer;
+  peer.identity = frames[0].to_string();
+  peer.delimiter = frames.size() == 3 && frames[1].size() == 0;
+  const auto payload = frames.back().to_string_view();
+  json request;
+  protocol::Limits limits = options_.limits;
+  auto bad = protocol::decode_frame(payload, limits, request, peer.encoding);
+  if (bad) return reply(control_, peer, protocol::error_message({std::nullopt, bad->reason, bad->detail}));
+  auto type = request.find("type");
+  if (type == request.end() || !type->is_string() || type->get<std::string>() != "status") {
+    return reply(control_, peer,
+                 protocol::error_message({std::nullopt, Reason::unknown_type,
+                                          "the control socket answers {\"type\":\"status\"}"}));
+  }
+  reply(control_, peer, status());
+}
+
+json IngestServer::status() const {
+  const double now = unix_now();
+  const auto w = writer_.stats();
+  const std::string db = store::database_path(options_.data_dir);
+  json sources = json::array();
+  for (const auto& [name, s] : sources_) {
+    json j = {{"name", name},
+              {"kind", protocol::kind_name(s->state.kind)},
+              {"accepted", s->accepted},
+              {"duplicates", s->duplicates},
+              {"rejected", s->rejected},
+              {"rate_per_s", s->rate.rate_per_s()}};
+    j["highest_seq"] = s->durable_seq ? json(*s->durable_seq) : json(nullptr);
+    j["last_t"] = s->last_t ? json(*s->last_t) : json(nullptr);
+    j["age_s"] = s->last_t ? json(now - *s->last_t) : json(nullptr);
+    sources.push_back(std::move(j));
+  }
+  return {{"type", "status"},
+          {"pid", ::getpid()},
+          {"uptime_s", now - started_unix_},
+          {"database_bytes", file_size(db) + file_size(db + "-wal")},
+          {"counters", counters_.to_json()},
+          {"writer",
+           {{"queued_readings", w.queued_readings},
+            {"queued_batches", w.queued_jobs},
+            {"lag_s", w.oldest_queued_age_s},
+            {"commits", w.commits},
+            {"failed_commits", w.failed_commits},
+            {"readings_committed", w.readings_committed},
+            {"commit_p50_s", w.commit_p50_s},
+            {"commit_p99_s", w.commit_p99_s},
+            {"commit_p999_s", w.commit_p999_s},
+            {"commit_max_s", w.commit_max_s},
+            {"checkpoints", w.checkpoints},
+            {"backpressure", held_.has_value()}}},
+          {"sources", std::move(sources)}};
+}
+
+}  // namespace lphi::ingest

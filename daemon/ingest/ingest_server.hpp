@@ -1,0 +1,126 @@
+// IngestServer: lphid's ingest and control sockets.
+//
+// The ingest socket (ZeroMQ ROUTER) takes batches of readings from senders
+// (DEALER or REQ). Each batch is checked in full -- its envelope, every
+// reading's keys, types and ranges, and the reading's time against what its
+// source sent before -- and the readings that pass go to the StoreWriter. The
+// reply, an acknowledgement listing every refused reading with its reason, is
+// sent only after the writer's COMMIT: a sender that holds an ack holds a
+// promise that the data are on disk. A message that cannot be read at all is
+// answered with an error carrying its reason. Every refusal is counted.
+//
+// Back-pressure: when the writer's queue is full, the server holds the one
+// batch it could not hand over and stops reading the socket until there is
+// room again; ZeroMQ's bounded pipes then push back to the senders, who keep
+// their unacknowledged readings. No queue grows without bound.
+//
+// The control socket (ROUTER, JSON request/reply) answers {"type":"status"}.
+//
+// All state lives on the thread that calls run(); the writer's commit
+// callbacks only hand completions over through a mutex-guarded list and an
+// eventfd.
+#pragma once
+
+#include <atomic>
+#include <cstdint>
+#include <map>
+#include <memory>
+#include <mutex>
+#include <optional>
+#include <string>
+#include <vector>
+#include <zmq.hpp>
+
+#include "daemon/config/config.hpp"
+#include "daemon/config/data_dir.hpp"
+#include "daemon/ingest/counters.hpp"
+#include "daemon/protocol/codec.hpp"
+#include "daemon/store/writer.hpp"
+
+namespace lphi::ingest {
+
+struct IngestOptions {
+  config::Endpoints endpoints;
+  std::string data_dir;  // for the database size in status
+  protocol::Limits limits;
+  double time_backward_tolerance_s = 60.0;
+  double time_future_tolerance_s = 86400.0;
+};
+
+class IngestServer {
+ public:
+  // Binds both sockets. `sources` are the registered sources, by name.
+  static store::Status create(zmq::context_t& context, const IngestOptions& options,
+                              store::StoreWriter& writer,
+                              const std::map<std::string, store::SourceState>& sources,
+                              std::unique_ptr<IngestServer>& out);
+  ~IngestServer();
+  IngestServer(const IngestServer&) = delete;
+  IngestServer& operator=(const IngestServer&) = delete;
+
+  // Serves until `stop` becomes true, then stops the writer, sends the acks of
+  // what it committed last, and returns.
+  void run(const std::atomic<bool>& stop);
+
+ private:
+  struct Peer {
+    std::string identity;
+    bool delimiter = false;  // a REQ peer: replies need an empty frame
+    protocol::Encoding encoding = protocol::Encoding::json;
+  };
+  struct SourceRuntime {
+    store::SourceState state;
+    std::string name;
+    std::optional<std::int64_t> validated_seq;  // highest seq handed to the writer
+    std::optional<double> validated_t;
+    std::optional<std::int64_t> durable_seq;    // highest seq committed
+    std::optional<double> last_t;               // t of the newest committed reading
+    double last_arrival_unix = 0.0;
+    std::uint64_t accepted = 0, duplicates = 0, rejected = 0;
+    RateMeter rate;
+  };
+  struct Completion {
+    Peer peer;
+    protocol::Ack ack;
+    store::WriteResult result;
+    SourceRuntime* source = nullptr;
+    std::optional<double> newest_t;
+  };
+  struct Held {
+    Peer peer;
+    store::WriteJob job;
+    protocol::Ack ack;
+    SourceRuntime* source = nullptr;
+    std::optional<double> newest_t;
+  };
+
+  IngestServer(zmq::context_t& context, const IngestOptions& options, store::StoreWriter& writer);
+  void on_ingest_message();
+  void on_control_message();
+  void handle_request(const Peer& peer, std::string_view payload);
+  void handle_batch(const Peer& peer, const nlohmann::json& message);
+  void handle_hello(const Peer& peer, const nlohmann::json& message);
+  bool submit(Held& held);
+  void drain_completions();
+  void finish(Completion& completion);
+  void refuse(const Peer& peer, std::optional<std::uint64_t> batch_id, protocol::Reason reason,
+              const std::string& detail);
+  void reply(zmq::socket_t& socket, const Peer& peer, const nlohmann::json& message);
+  nlohmann::json status() const;
+
+  zmq::context_t& context_;
+  IngestOptions options_;
+  store::StoreWriter& writer_;
+  zmq::socket_t ingest_;
+  zmq::socket_t control_;
+  int wake_fd_ = -1;
+  std::map<std::string, std::unique_ptr<SourceRuntime>> sources_;
+  IngestCounters counters_;
+  std::optional<Held> held_;
+  double started_unix_ = 0.0;
+
+  std::mutex completions_mutex_;
+  std::vector<Completion> completions_;  // filled by the writer thread
+};
+
+}  // namespace lphi::ingest

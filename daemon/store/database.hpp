@@ -1,0 +1,102 @@
+// The one place that opens lphi's SQLite database, and thin owners of the
+// SQLite handles. A Database or Statement is used by one thread at a time.
+//
+// Errors are values: every operation returns a Status whose message names
+// what failed (the file, the statement, SQLite's own explanation).
+#pragma once
+
+#include <sqlite3.h>
+
+#include <cstdint>
+#include <string>
+#include <string_view>
+
+namespace lphi::store {
+
+struct Status {
+  bool ok = true;
+  std::string message;  // set when !ok
+
+  static Status success() { return {}; }
+  static Status failure(std::string why) { return {false, std::move(why)}; }
+  explicit operator bool() const { return ok; }
+};
+
+enum class OpenMode {
+  writer,     // read-write, created if missing, WAL; only the store writer uses this
+  read_only,  // every reader opens its own
+};
+
+enum class Synchronous { normal, full };
+
+// The database file inside a data directory.
+std::string database_path(std::string_view data_dir);
+
+class Database {
+ public:
+  Database() = default;
+  ~Database();
+  Database(const Database&) = delete;
+  Database& operator=(const Database&) = delete;
+  Database(Database&& other) noexcept;
+  Database& operator=(Database&& other) noexcept;
+
+  // Opens path and sets the connection up (WAL and synchronous for a writer,
+  // a busy timeout for both). Does not apply migrations (see migrations.hpp).
+  static Status open(const std::string& path, OpenMode mode, Database& out,
+                     Synchronous synchronous = Synchronous::normal);
+
+  sqlite3* handle() const { return db_; }
+  bool is_open() const { return db_ != nullptr; }
+  const std::string& path() const { return path_; }
+
+  // Runs one or more statements that return no rows.
+  Status exec(std::string_view sql);
+  // The current SQLite error, prefixed with what was being done.
+  Status error(std::string_view doing) const;
+
+ private:
+  sqlite3* db_ = nullptr;
+  std::string path_;
+};
+
+class Statement {
+ public:
+  Statement() = default;
+  ~Statement();
+  Statement(const Statement&) = delete;
+  Statement& operator=(const Statement&) = delete;
+  Statement(Statement&& other) noexcept;
+  Statement& operator=(Statement&& other) noexcept;
+
+  static Status prepare(const Database& db, std::string_view sql, Statement& out);
+
+  void bind(int index, double value);
+  void bind(int index, std::int64_t value);
+  void bind(int index, std::string_view value);
+  void bind_null(int index);
+  template <class T>
+  void bind_optional(int index, const T& value) {
+    if (value) {
+      bind(index, *value);
+    } else {
+      bind_null(index);
+    }
+  }
+
+  // SQLITE_ROW, SQLITE_DONE or an error code.
+  int step();
+  void reset();
+
+  bool column_is_null(int column) const;
+  double column_double(int column) const;
+  std::int64_t column_int(int column) const;
+  std::string column_text(int column) const;
+
+  sqlite3_stmt* handle() const { return stmt_; }
+
+ private:
+  sqlite3_stmt* stmt_ = nullptr;
+};
+
+}  // namespace lphi::store

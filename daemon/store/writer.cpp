@@ -1,0 +1,387 @@
+#include "daemon/store/writer.hpp"
+
+#include <algorithm>
+#include <chrono>
+
+#include "daemon/store/migrations.hpp"
+
+namespace lphi::store {
+
+using protocol::SourceKind;
+using Clock = std::chrono::steady_clock;
+
+namespace {
+
+constexpr std::size_t commit_history = 65536;
+
+std::string_view readings_table(SourceKind kind) {
+  switch (kind) {
+    case SourceKind::lockin: return "lockin_readings";
+    case SourceKind::thermometer: return "thermometer_readings";
+    case SourceKind::field: return "field_readings";
+  }
+  return "lockin_readings";
+}
+
+double unix_now() {
+  return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
+}
+
+}  // namespace
+
+StoreWriter::StoreWriter(const WriterOptions& options) : options_(options) {}
+
+StoreWriter::~StoreWriter() { stop(); }
+
+Status StoreWriter::open(const std::string& path, const WriterOptions& options,
+                         std::unique_ptr<StoreWriter>& out) {
+  std::unique_ptr<StoreWriter> w(new StoreWriter(options));
+  w->path_ = path;
+  if (auto s = Database::open(path, OpenMode::writer, w->db_, options.synchronous); !s) return s;
+  if (auto s = apply_migrations(w->db_, embedded_migrations()); !s) return s;
+  if (auto s = w->prepare_statements(); !s) return s;
+  out = std::move(w);
+  return Status::success();
+}
+
+Status StoreWriter::prepare_statements() {
+  if (auto s = Statement::prepare(
+          db_,
+          "INSERT INTO lockin_readings (source_id, seq, t, x_v, y_v, frequency_hz, range_v,"
+          " time_constant_s, overload) VALUES (?,?,?,?,?,?,?,?,?) ON CONFLICT DO NOTHING",
+          insert_lockin_);
+      !s) {
+    return s;
+  }
+  if (auto s = Statement::prepare(db_,
+                                  "INSERT INTO thermometer_readings (source_id, seq, t,"
+                                  " temperature_k, resistance_ohm) VALUES (?,?,?,?,?)"
+                                  " ON CONFLICT DO NOTHING",
+                                  insert_thermometer_);
+      !s) {
+    return s;
+  }
+  if (auto s = Statement::prepare(db_,
+                                  "INSERT INTO field_readings (source_id, seq, t, field_t)"
+                                  " VALUES (?,?,?,?) ON CONFLICT DO NOTHING",
+                                  insert_field_);
+      !s) {
+    return s;
+  }
+  return Statement::prepare(
+      db_, "INSERT INTO gaps (source_id, first_seq, last_seq, detected_at) VALUES (?,?,?,?)",
+      insert_gap_);
+}
+
+Status StoreWriter::register_source(const std::string& name, SourceKind kind, SourceState& state) {
+  Statement find;
+  if (auto s = Statement::prepare(db_, "SELECT id, kind FROM sources WHERE name = ?", find); !s) {
+    return s;
+  }
+  find.bind(1, std::string_view(name));
+  int rc = find.step();
+  if (rc == SQLITE_ROW) {
+    state.id = find.column_int(0);
+    const std::string stored = find.column_text(1);
+    if (stored != protocol::kind_name(kind)) {
+      return Status::failure("source \"" + name + "\" is stored as a " + stored +
+                             " but configured as a " + std::string(protocol::kind_name(kind)) +
+                             "; give the new instrument a new name");
+    }
+  } else if (rc == SQLITE_DONE) {
+    Statement add;
+    if (auto s = Statement::prepare(db_, "INSERT INTO sources (name, kind) VALUES (?, ?)", add); !s) {
+      return s;
+    }
+    add.bind(1, std::string_view(name));
+    add.bind(2, protocol::kind_name(kind));
+    if (add.step() != SQLITE_DONE) return db_.error("adding source " + name);
+    state.id = static_cast<std::int64_t>(sqlite3_last_insert_rowid(db_.handle()));
+  } else {
+    return db_.error("looking up source " + name);
+  }
+  state.kind = kind;
+  state.highest_seq.reset();
+  state.last_t.reset();
+  Statement last;
+  const std::string sql = "SELECT seq, t FROM " + std::string(readings_table(kind)) +
+                          " WHERE source_id = ? ORDER BY seq DESC LIMIT 1";
+  if (auto s = Statement::prepare(db_, sql, last); !s) return s;
+  last.bind(1, state.id);
+  rc = last.step();
+  if (rc == SQLITE_ROW) {
+    state.highest_seq = last.column_int(0);
+    state.last_t = last.column_double(1);
+  } else if (rc != SQLITE_DONE) {
+    return db_.error("reading the last reading of " + name);
+  }
+  sources_[state.id] = Source{kind, state.highest_seq};
+  return Status::success();
+}
+
+Status StoreWriter::register_sample(const SampleRow& r) {
+  Statement up;
+  if (auto s = Statement::prepare(
+          db_,
+          "INSERT INTO samples (name, model, squares, width_m, thickness_m, excitation_a,"
+          " lockin_source, thermometer_source, field_source, gain, diffusion_m2s,"
+          " mean_free_path_m, alpha_fixed) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?)"
+          " ON CONFLICT (name) DO UPDATE SET model=excluded.model, squares=excluded.squares,"
+          " width_m=excluded.width_m, thickness_m=excluded.thickness_m,"
+          " excitation_a=excluded.excitation_a, lockin_source=excluded.lockin_source,"
+          " thermometer_source=excluded.thermometer_source, field_source=excluded.field_source,"
+          " gain=excluded.gain, diffusion_m2s=excluded.diffusion_m2s,"
+          " mean_free_path_m=excluded.mean_free_path_m, alpha_fixed=excluded.alpha_fixed",
+          up);
+      !s) {
+    return s;
+  }
+  up.bind(1, std::string_view(r.name));
+  up.bind(2, std::string_view(r.model));
+  up.bind(3, r.squares);
+  up.bind(4, r.width_m);
+  up.bind(5, r.thickness_m);
+  up.bind(6, r.excitation_a);
+  up.bind(7, std::string_view(r.lockin));
+  up.bind(8, std::string_view(r.thermometer));
+  up.bind(9, std::string_view(r.field));
+  up.bind_optional(10, r.gain);
+  up.bind_optional(11, r.diffusion_m2s);
+  up.bind_optional(12, r.mean_free_path_m);
+  up.bind_optional(13, r.alpha_fixed);
+  if (up.step() != SQLITE_DONE) return db_.error("storing sample " + r.name);
+  return Status::success();
+}
+
+void StoreWriter::start() {
+  std::lock_guard lock(mutex_);
+  if (started_) return;
+  started_ = true;
+  thread_ = std::thread([this] { run(); });
+  checkpointer_ = std::thread([this] { run_checkpoints(); });
+}
+
+bool StoreWriter::try_submit(WriteJob& job) {
+  const std::size_t n = protocol::reading_count(job.readings);
+  {
+    std::lock_guard lock(mutex_);
+    if (stopping_ || !started_) return false;
+    // One job larger than the whole queue still goes in when the queue is
+    // empty, so that nothing can be refused forever.
+    if (!queue_.empty() && queued_readings_ + n > options_.queue_max_readings) return false;
+    queue_.push_back(Queued{std::move(job), Clock::now()});
+    queued_readings_ += n;
+  }
+  wake_.notify_one();
+  return true;
+}
+
+void StoreWriter::stop() {
+  {
+    std::lock_guard lock(mutex_);
+    stopping_ = true;
+  }
+  wake_.notify_all();
+  checkpoint_wake_.notify_all();
+  if (thread_.joinable()) thread_.join();
+  if (checkpointer_.joinable()) checkpointer_.join();
+}
+
+bool StoreWriter::insert(std::int64_t source_id, const protocol::LockinReading& r) {
+  auto& s = insert_lockin_;
+  s.bind(1, source_id);
+  s.bind(2, r.seq);
+  s.bind(3, r.t);
+  s.bind(4, r.x_v);
+  s.bind(5, r.y_v);
+  s.bind_optional(6, r.frequency_hz);
+  s.bind_optional(7, r.range_v);
+  s.bind_optional(8, r.time_constant_s);
+  if (r.overload) {
+    s.bind(9, std::int64_t{*r.overload ? 1 : 0});
+  } else {
+    s.bind_null(9);
+  }
+  const bool ok = s.step() == SQLITE_DONE;
+  s.reset();
+  return ok;
+}
+
+bool StoreWriter::insert(std::int64_t source_id, const protocol::ThermometerReading& r) {
+  auto& s = insert_thermometer_;
+  s.bind(1, source_id);
+  s.bind(2, r.seq);
+  s.bind(3, r.t);
+  s.bind(4, r.temperature_k);
+  s.bind_optional(5, r.resistance_ohm);
+  const bool ok = s.step() == SQLITE_DONE;
+  s.reset();
+  return ok;
+}
+
+bool StoreWriter::insert(std::int64_t source_id, const protocol::FieldReading& r) {
+  auto& s = insert_field_;
+  s.bind(1, source_id);
+  s.bind(2, r.seq);
+  s.bind(3, r.t);
+  s.bind(4, r.field_t);
+  const bool ok = s.step() == SQLITE_DONE;
+  s.reset();
+  return ok;
+}
+
+Status StoreWriter::write(const WriteJob& job, WriteResult& result) {
+  auto found = sources_.find(job.source_id);
+  if (found == sources_.end()) {
+    return Status::failure("source id " + std::to_string(job.source_id) + " is not registered");
+  }
+  Source& source = found->second;
+  if (protocol::kind_of(job.readings) != source.kind) {
+    return Status::failure("readings of the wrong kind for source id " +
+                           std::to_string(job.source_id));
+  }
+  return std::visit(
+      [&](const auto& readings) -> Status {
+        for (const auto& r : readings) {
+          if (!insert(job.source_id, r)) return db_.error("storing a reading");
+          if (sqlite3_changes(db_.handle()) == 0) {
+            ++result.duplicates;
+          } else {
+            ++result.accepted;
+          }
+          if (source.highest_seq && r.seq > *source.highest_seq + 1) {
+            insert_gap_.bind(1, job.source_id);
+            insert_gap_.bind(2, *source.highest_seq + 1);
+            insert_gap_.bind(3, r.seq - 1);
+            insert_gap_.bind(4, unix_now());
+            const bool ok = insert_gap_.step() == SQLITE_DONE;
+            insert_gap_.reset();
+            if (!ok) return db_.error("recording a gap");
+            ++result.gaps_recorded;
+          }
+          if (!source.highest_seq || r.seq > *source.highest_seq) source.highest_seq = r.seq;
+          if (!result.durable_through || r.seq > *result.durable_through) {
+            result.durable_through = r.seq;
+          }
+        }
+        return Status::success();
+      },
+      job.readings);
+}
+
+void StoreWriter::record_commit(Clock::duration d) {
+  const double seconds = std::chrono::duration<double>(d).count();
+  if (commit_seconds_.size() < commit_history) {
+    commit_seconds_.push_back(seconds);
+  } else {
+    commit_seconds_[commit_next_] = seconds;
+    commit_next_ = (commit_next_ + 1) % commit_history;
+  }
+}
+
+void StoreWriter::run() {
+  std::vector<Queued> batch;
+  std::vector<WriteResult> results;
+  while (true) {
+    batch.clear();
+    {
+      std::unique_lock lock(mutex_);
+      wake_.wait(lock, [&] { return stopping_ || !queue_.empty(); });
+      if (queue_.empty()) return;  // stopping, and everything is written
+    }
+    const auto began = Clock::now();
+    std::map<std::int64_t, Source> before = sources_;
+    Status status = db_.exec("BEGIN");
+    std::size_t readings = 0;
+    results.clear();
+    // Group commit: take what is waiting, up to the limits.
+    while (status && readings < options_.commit_max_readings &&
+           Clock::now() - began < options_.commit_max_time) {
+      Queued next;
+      {
+        std::lock_guard lock(mutex_);
+        if (queue_.empty()) break;
+        next = std::move(queue_.front());
+        queue_.pop_front();
+      }
+      WriteResult result;
+      status = write(next.job, result);
+      readings += protocol::reading_count(next.job.readings);
+      batch.push_back(std::move(next));
+      results.push_back(std::move(result));
+    }
+    if (status) status = db_.exec("COMMIT");
+    const auto done = Clock::now();
+    if (!status) {
+      (void)db_.exec("ROLLBACK");
+      sources_ = std::move(before);
+    }
+    {
+      std::lock_guard lock(mutex_);
+      queued_readings_ -= readings;
+      if (status) {
+        ++commits_;
+        readings_committed_ += readings;
+        record_commit(done - began);
+      } else {
+        ++failed_commits_;
+      }
+    }
+    for (std::size_t i = 0; i < batch.size(); ++i) {
+      WriteResult& result = results[i];
+      if (!status) result = WriteResult{status, 0, 0, 0, std::nullopt, {}};
+      result.latency = done - batch[i].submitted;
+      if (batch[i].job.on_durable) batch[i].job.on_durable(result);
+    }
+    if (!status) {
+      // A failing disk should not spin the CPU; the senders will resend.
+      std::this_thread::sleep_for(std::chrono::milliseconds(50));
+    }
+  }
+}
+
+void StoreWriter::run_checkpoints() {
+  Database db;
+  if (!Database::open(path_, OpenMode::writer, db, options_.synchronous)) return;
+  std::unique_lock lock(mutex_);
+  while (!stopping_) {
+    checkpoint_wake_.wait_for(lock, options_.checkpoint_interval, [&] { return stopping_; });
+    lock.unlock();
+    // PASSIVE never waits for the writer or for readers: it copies what it can.
+    int log_frames = 0, checkpointed = 0;
+    const int rc = sqlite3_wal_checkpoint_v2(db.handle(), nullptr, SQLITE_CHECKPOINT_PASSIVE,
+                                             &log_frames, &checkpointed);
+    lock.lock();
+    if (rc == SQLITE_OK) ++checkpoints_;
+  }
+}
+
+WriterStats StoreWriter::stats() const {
+  std::lock_guard lock(mutex_);
+  WriterStats s;
+  s.commits = commits_;
+  s.readings_committed = readings_committed_;
+  s.failed_commits = failed_commits_;
+  s.queued_readings = queued_readings_;
+  s.queued_jobs = queue_.size();
+  s.checkpoints = checkpoints_;
+  if (!queue_.empty()) {
+    s.oldest_queued_age_s =
+        std::chrono::duration<double>(Clock::now() - queue_.front().submitted).count();
+  }
+  if (!commit_seconds_.empty()) {
+    std::vector<double> sorted = commit_seconds_;
+    std::sort(sorted.begin(), sorted.end());
+    auto at = [&](double q) {
+      const auto i = static_cast<std::size_t>(q * static_cast<double>(sorted.size() - 1) + 0.5);
+      return sorted[std::min(i, sorted.size() - 1)];
+    };
+    s.commit_p50_s = at(0.5);
+    s.commit_p99_s = at(0.99);
+    s.commit_p999_s = at(0.999);
+    s.commit_max_s = sorted.back();
+  }
+  return s;
+}
+
+}  // namespace lphi::store

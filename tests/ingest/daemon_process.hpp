@@ -1,0 +1,48 @@
+// Runs the real lphid (and lphi) as child processes for integration tests.
+// Every wait is bounded; readiness is polled on the control socket.
+#pragma once
+
+#include <sys/types.h>
+
+#include <chrono>
+#include <nlohmann/json.hpp>
+#include <optional>
+#include <string>
+#include <vector>
+
+namespace lphi::testing {
+
+// Three sources, one of each kind, and one sample.
+std::string test_config();
+
+class DaemonProcess {
+ public:
+  DaemonProcess(std::string data_dir, std::string config_path);
+  ~DaemonProcess();
+  DaemonProcess(const DaemonProcess&) = delete;
+  DaemonProcess& operator=(const DaemonProcess&) = delete;
+
+  // Starts lphid and waits until it answers status (false after 30 s).
+  bool start();
+  void kill_hard();  // SIGKILL, then reap
+  // SIGTERM and wait for a clean exit; returns the exit status (-1 on timeout).
+  int stop();
+  bool running() const { return pid_ > 0; }
+  std::optional<nlohmann::json> status(std::chrono::milliseconds timeout) const;
+
+ private:
+  std::string data_dir_, config_path_;
+  pid_t pid_ = -1;
+};
+
+struct RunResult {
+  int exit_code = -1;  // -1: killed after the timeout
+  std::string out;
+  std::string err;
+};
+
+// Runs a program with stdin from a file ("" for /dev/null), capturing output.
+RunResult run_program(const std::vector<std::string>& args, const std::string& stdin_path,
+                      std::chrono::seconds timeout);
+
+}  // namespace lphi::testing
