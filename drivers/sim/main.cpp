@@ -1,0 +1,79 @@
+// lphi-sim: simulated lock-in, thermometer and magnet supply on loopback TCP
+// ports, driven by a scenario file's sample model and cooldown programme.
+#include <CLI/CLI.hpp>
+#include <cmath>
+#include <cstdio>
+#include <string>
+
+#include "drivers/sim/instruments.hpp"
+#include "drivers/sim/scenario_file.hpp"
+#include "drivers/sim/server.hpp"
+
+namespace {
+
+void print_commands() {
+  using lphi::sim::Instrument;
+  std::printf(
+      "lphi-sim command tree. One command per line, terminated by \\n; headers are\n"
+      "case-insensitive, short (MEAS) or long (MEASURE) form. A query that fails is\n"
+      "answered \"ERR <code>,\\\"<message>\\\"\"; every error is also queued for SYST:ERR?.\n"
+      "Set commands are not answered. Times are simulated seconds.\n");
+  for (Instrument i : lphi::sim::kInstruments) {
+    std::printf("\n%s:\n%s", lphi::sim::instrument_name(i),
+                lphi::sim::SimInstrument::command_list(i).c_str());
+  }
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  CLI::App app{"lphi-sim: a simulated cryostat (lock-in, thermometer, magnet) on TCP ports"};
+  std::string scenario_path;
+  lphi::sim::ServerOptions options;
+  long long seed = -1;
+  bool list_commands = false;
+  app.add_option("scenario", scenario_path, "scenario file (TOML)");
+  app.add_option("--speed", options.speed, "simulated seconds per wall-clock second (default 1)");
+  app.add_option("--seed", seed, "noise seed (default: the scenario's)");
+  app.add_option("--truth", options.truth_path, "write the truth file (JSON lines) here");
+  app.add_option("--ports-file", options.ports_file, "write the chosen ports here (JSON)");
+  app.add_option("--duration-s", options.duration_s,
+                 "stop after this many simulated seconds (default: at the programme's end)");
+  app.add_option("--bind", options.bind, "address to listen on (default 127.0.0.1)");
+  app.add_flag("--hold", options.hold, "keep serving the last state after the programme ends");
+  app.add_flag("--list-commands", list_commands, "print the instruments' command tree and exit");
+  CLI11_PARSE(app, argc, argv);
+
+  if (list_commands) {
+    print_commands();
+    return 0;
+  }
+  if (scenario_path.empty()) {
+    std::fprintf(stderr, "lphi-sim: a scenario file is needed (see drivers/sim/scenarios/)\n");
+    return 2;
+  }
+  if (!std::isfinite(options.speed) || options.speed <= 0 || options.speed > 1e6) {
+    std::fprintf(stderr, "lphi-sim: --speed must be > 0 and at most 1e6 (got %g)\n", options.speed);
+    return 2;
+  }
+  if (!std::isfinite(options.duration_s) || options.duration_s < 0) {
+    std::fprintf(stderr, "lphi-sim: --duration-s must be >= 0 (got %g)\n", options.duration_s);
+    return 2;
+  }
+  auto loaded = lphi::sim::load_scenario_file(scenario_path);
+  if (!loaded.scenario) {
+    std::fprintf(stderr, "lphi-sim: %s\n", loaded.error.c_str());
+    return 2;
+  }
+  if (seed >= 0) loaded.scenario->seed = static_cast<std::uint64_t>(seed);
+  lphi::sim::SimServer server(std::move(*loaded.scenario), options);
+  if (auto e = server.open(); !e.empty()) {
+    std::fprintf(stderr, "lphi-sim: %s\n", e.c_str());
+    return 1;
+  }
+  if (auto e = server.run(); !e.empty()) {
+    std::fprintf(stderr, "lphi-sim: %s\n", e.c_str());
+    return 1;
+  }
+  return 0;
+}

@@ -1,0 +1,73 @@
+#include "drivers/sim/scenario.hpp"
+
+#include <cmath>
+#include <cstdio>
+
+namespace lphi::sim {
+namespace {
+
+bool positive(double x) { return std::isfinite(x) && x > 0.0; }
+bool non_negative(double x) { return std::isfinite(x) && x >= 0.0; }
+
+std::string num(double x) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%g", x);
+  return buf;
+}
+
+}  // namespace
+
+std::string scenario_error(const Scenario& s) {
+  if (auto e = sample_error(s.sample); !e.empty()) return "sample: " + e;
+  if (auto e = dephasing_error(s.dephasing); !e.empty()) return "dephasing: " + e;
+  const LockinSettings& l = s.lockin;
+  if (!positive(l.current_a)) return "lockin: current_a must be positive (got " + num(l.current_a) + ")";
+  if (!positive(l.gain)) return "lockin: gain must be positive (got " + num(l.gain) + ")";
+  if (!non_negative(l.quadrature_fraction)) return "lockin: quadrature_fraction must be >= 0";
+  if (!positive(l.frequency_hz)) return "lockin: frequency_hz must be positive";
+  if (!positive(l.range_v)) return "lockin: range_v must be positive";
+  if (!non_negative(l.time_constant_s)) return "lockin: time_constant_s must be >= 0";
+  if (!positive(s.thermometer.r0_ohm) || !positive(s.thermometer.t0_k))
+    return "thermometer: r0_ohm and t0_k must be positive";
+  if (!positive(s.magnet.limit_t) || !positive(s.magnet.max_rate_t_per_s))
+    return "magnet: limit_t and max_rate_t_per_s must be positive";
+  const NoiseLevels& n = s.noise;
+  if (!positive(n.sample_interval_s)) return "noise: sample_interval_s must be positive";
+  if (!non_negative(n.lockin_x_v) || !non_negative(n.lockin_y_v) ||
+      !non_negative(n.temperature_rel) || !non_negative(n.field_t))
+    return "noise: levels must be finite and >= 0";
+  if (!(n.temperature_rel < 0.1)) return "noise: temperature_rel must be below 0.1";
+  if (!positive(s.programme.start_temperature_k))
+    return "programme: start_temperature_k must be positive";
+  if (s.programme.plateaus.empty()) return "programme: at least one [[programme.plateau]] is needed";
+  for (std::size_t i = 0; i < s.programme.plateaus.size(); ++i) {
+    const Plateau& p = s.programme.plateaus[i];
+    const std::string where = "programme.plateau[" + std::to_string(i) + "]: ";
+    if (!positive(p.temperature_k)) return where + "temperature_k must be positive";
+    if (!non_negative(p.ramp_s) || !non_negative(p.dwell_s))
+      return where + "ramp_s and dwell_s must be >= 0";
+    if (p.sweeps < 0) return where + "sweeps must be >= 0";
+    if (!positive(p.max_field_t) || p.max_field_t > s.magnet.limit_t)
+      return where + "max_field_t must be positive and at most magnet.limit_t";
+    if (!positive(p.rate_t_per_s) || p.rate_t_per_s > s.magnet.max_rate_t_per_s)
+      return where + "rate_t_per_s must be positive and at most magnet.max_rate_t_per_s";
+  }
+  const Faults& f = s.faults;
+  for (const auto& d : f.dropouts)
+    if (!non_negative(d.start_s) || !positive(d.duration_s))
+      return "fault lockin-dropout: start_s >= 0 and duration_s > 0 are needed";
+  for (const auto& w : f.stuck)
+    if (!non_negative(w.start_s) || !positive(w.duration_s))
+      return "fault thermometer-stuck: start_s >= 0 and duration_s > 0 are needed";
+  for (const auto& r : f.resets)
+    if (!non_negative(r.at_s) || !non_negative(r.period_s))
+      return "fault connection-reset: at_s and period_s must be >= 0";
+  if (f.heating && (!non_negative(f.heating_start_s) || !positive(f.heating_floor_k) ||
+                    !positive(f.heating_exponent)))
+    return "fault electron-heating: start_s >= 0, floor_k > 0 and exponent > 0 are needed";
+  for (int p : s.ports)
+    if (p < 0 || p > 65535) return "ports: a port must be 0..65535";
+  return {};
+}
+
+}  // namespace lphi::sim
