@@ -1,0 +1,160 @@
+#include "analysis/alignment.hpp"
+
+#include <cmath>
+
+namespace lphi::align {
+
+std::string validate(const AlignerOptions& o) {
+  auto positive = [](double v) { return std::isfinite(v) && v > 0.0; };
+  if (!positive(o.max_age_temperature_s))
+    return "max_age_temperature_s must be finite and > 0";
+  if (!positive(o.max_age_field_s)) return "max_age_field_s must be finite and > 0";
+  if (!positive(o.max_hold_s) || o.max_hold_s < o.max_age_temperature_s ||
+      o.max_hold_s < o.max_age_field_s)
+    return "max_hold_s must be finite and at least both max ages";
+  if (o.max_pending < 1) return "max_pending must be at least 1";
+  if (o.max_buffered < 2) return "max_buffered must be at least 2 (one reading on each side)";
+  return {};
+}
+
+Aligner::Aligner(const AlignerOptions& options) : options_(options), error_(validate(options)) {}
+
+void Aligner::push(const LockinReading& r, std::vector<AlignedPoint>& out) {
+  ++counts_.lockin_received;
+  const bool finite = std::isfinite(r.t_s) && std::isfinite(r.x_v) && std::isfinite(r.y_v) &&
+                      std::isfinite(r.range_v) && std::isfinite(r.time_constant_s);
+  if (!error_.empty() || !finite || r.range_v < 0.0 || r.time_constant_s < 0.0) {
+    ++counts_.refused_lockin;
+    return;
+  }
+  if (seen_lockin_ && r.t_s < last_lockin_t_) {
+    ++counts_.out_of_order_lockin;
+    return;
+  }
+  seen_lockin_ = true;
+  last_lockin_t_ = r.t_s;
+  pending_.push_back(r);
+  release(out);
+}
+
+void Aligner::push(const TemperatureReading& r, std::vector<AlignedPoint>& out) {
+  if (!error_.empty() || !std::isfinite(r.t_s) || !std::isfinite(r.temperature_k) ||
+      r.temperature_k <= 0.0) {
+    ++counts_.refused_temperature;
+    return;
+  }
+  if (seen_temperature_ && r.t_s <= last_temperature_t_) {
+    ++counts_.out_of_order_temperature;
+    return;
+  }
+  seen_temperature_ = true;
+  last_temperature_t_ = r.t_s;
+  keep(temperature_, {r.t_s, r.temperature_k}, counts_.dropped_temperature);
+  release(out);
+}
+
+void Aligner::push(const FieldReading& r, std::vector<AlignedPoint>& out) {
+  if (!error_.empty() || !std::isfinite(r.t_s) || !std::isfinite(r.field_t)) {
+    ++counts_.refused_field;
+    return;
+  }
+  if (seen_field_ && r.t_s <= last_field_t_) {
+    ++counts_.out_of_order_field;
+    return;
+  }
+  seen_field_ = true;
+  last_field_t_ = r.t_s;
+  keep(field_, {r.t_s, r.field_t}, counts_.dropped_field);
+  release(out);
+}
+
+void Aligner::flush(std::vector<AlignedPoint>& out) {
+  while (!pending_.empty()) decide_front(out);
+}
+
+void Aligner::keep(std::deque<Sample>& buffer, Sample s, std::size_t& dropped) {
+  buffer.push_back(s);
+  // Every later lock-in reading is at or after the oldest held one (or, with
+  // none held, the last one seen), so readings before that are not needed.
+  if (!pending_.empty())
+    trim(buffer, pending_.front().t_s);
+  else if (seen_lockin_)
+    trim(buffer, last_lockin_t_);
+  while (buffer.size() > options_.max_buffered) {
+    buffer.pop_front();
+    ++dropped;
+  }
+}
+
+// Decides held readings in time order: those whose neighbours are final,
+// then those forced out by the hold time or the capacity.
+void Aligner::release(std::vector<AlignedPoint>& out) {
+  while (!pending_.empty()) {
+    const double t = pending_.front().t_s;
+    const bool ready = seen_temperature_ && last_temperature_t_ >= t && seen_field_ &&
+                       last_field_t_ >= t;
+    const bool held_too_long = last_lockin_t_ - t > options_.max_hold_s;
+    const bool too_many = pending_.size() > options_.max_pending;
+    if (!ready && !held_too_long && !too_many) break;
+    if (!ready) {
+      if (too_many)
+        ++counts_.decided_by_capacity;
+      else
+        ++counts_.decided_by_hold;
+    }
+    decide_front(out);
+  }
+}
+
+void Aligner::trim(std::deque<Sample>& buffer, double frontier_t_s) {
+  while (buffer.size() >= 2 && buffer[1].t_s <= frontier_t_s) buffer.pop_front();
+}
+
+// After trim(buffer, t), buffer[0] is the last reading at or before t (if
+// any is) and buffer[1] the first after it.
+Aligner::Lookup Aligner::interpolate(std::deque<Sample>& buffer, double t_s, double max_age_s) {
+  trim(buffer, t_s);
+  Lookup found;
+  if (buffer.empty() || buffer[0].t_s > t_s) return found;
+  const Sample& a = buffer[0];
+  if (a.t_s == t_s) {
+    found.ok = true;
+    found.exact = true;
+    found.value = a.value;
+    return found;
+  }
+  if (buffer.size() < 2) return found;
+  const Sample& b = buffer[1];
+  if (t_s - a.t_s > max_age_s || b.t_s - t_s > max_age_s) return found;
+  found.ok = true;
+  found.value = a.value + (b.value - a.value) * (t_s - a.t_s) / (b.t_s - a.t_s);
+  return found;
+}
+
+void Aligner::decide_front(std::vector<AlignedPoint>& out) {
+  const LockinReading r = pending_.front();
+  pending_.pop_front();
+  const Lookup temperature = interpolate(temperature_, r.t_s, options_.max_age_temperature_s);
+  const Lookup field = interpolate(field_, r.t_s, options_.max_age_field_s);
+  if (!temperature.ok || !field.ok) {
+    ++counts_.unused;
+    if (!temperature.ok) ++counts_.missing_temperature;
+    if (!field.ok) ++counts_.missing_field;
+    return;
+  }
+  ++counts_.aligned;
+  AlignedPoint p;
+  p.t_s = r.t_s;
+  p.x_v = r.x_v;
+  p.y_v = r.y_v;
+  p.temperature_k = temperature.value;
+  p.field_t = field.value;
+  p.range_v = r.range_v;
+  p.time_constant_s = r.time_constant_s;
+  p.overload = r.overload;
+  p.temperature_exact = temperature.exact;
+  p.field_exact = field.exact;
+  out.push_back(p);
+}
+
+}  // namespace lphi::align

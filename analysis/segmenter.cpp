@@ -1,0 +1,314 @@
+#include "analysis/segmenter.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+namespace lphi::segment {
+
+void TemperatureAccumulator::add(double temperature_k) {
+  ++n_;
+  if (n_ == 1) {
+    min_ = max_ = temperature_k;
+  } else {
+    min_ = std::min(min_, temperature_k);
+    max_ = std::max(max_, temperature_k);
+  }
+  const double delta = temperature_k - mean_;
+  mean_ += delta / static_cast<double>(n_);
+  m2_ += delta * (temperature_k - mean_);
+}
+
+TemperatureStats TemperatureAccumulator::stats() const {
+  TemperatureStats s;
+  s.n = n_;
+  if (n_ == 0) return s;
+  s.mean_k = mean_;
+  s.std_k = n_ > 1 ? std::sqrt(std::max(0.0, m2_ / static_cast<double>(n_ - 1))) : 0.0;
+  s.min_k = min_;
+  s.max_k = max_;
+  return s;
+}
+
+PlateauDetector::PlateauDetector(const PlateauOptions& options) : options_(options) {}
+
+bool PlateauDetector::push(double t_s, double temperature_k, std::vector<Plateau>& out) {
+  if (acc_.n() == 0) {
+    acc_.add(temperature_k);
+    t_start_s_ = t_last_s_ = t_s;
+    return false;
+  }
+  const double lo = std::min(acc_.min_k(), temperature_k);
+  const double hi = std::max(acc_.max_k(), temperature_k);
+  const double n = static_cast<double>(acc_.n());
+  const double mean = (acc_.mean_k() * n + temperature_k) / (n + 1.0);
+  if (hi - lo <= options_.relative_spread * mean) {
+    acc_.add(temperature_k);
+    t_last_s_ = t_s;
+    return false;
+  }
+  close(out);
+  ++run_;
+  acc_ = TemperatureAccumulator{};
+  acc_.add(temperature_k);
+  t_start_s_ = t_last_s_ = t_s;
+  return true;
+}
+
+void PlateauDetector::finish(std::vector<Plateau>& out) {
+  if (acc_.n() == 0) return;
+  close(out);
+  ++run_;
+  acc_ = TemperatureAccumulator{};
+}
+
+void PlateauDetector::close(std::vector<Plateau>& out) {
+  if (t_last_s_ - t_start_s_ < options_.min_duration_s) return;
+  out.push_back({run_, t_start_s_, t_last_s_, acc_.stats()});
+}
+
+std::string_view direction_name(Direction d) { return d == Direction::up ? "up" : "down"; }
+
+std::string validate(const SegmenterOptions& o) {
+  auto finite_nonneg = [](double v) { return std::isfinite(v) && v >= 0.0; };
+  if (!finite_nonneg(o.plateau.relative_spread))
+    return "plateau.relative_spread must be finite and >= 0";
+  if (!finite_nonneg(o.plateau.min_duration_s))
+    return "plateau.min_duration_s must be finite and >= 0";
+  if (!std::isfinite(o.min_span_t) || o.min_span_t <= 0.0)
+    return "min_span_t must be finite and > 0";
+  if (!finite_nonneg(o.reversal_tolerance_t))
+    return "reversal_tolerance_t must be finite and >= 0";
+  if (o.reversal_tolerance_t >= o.min_span_t / 2.0)
+    return "reversal_tolerance_t must be below min_span_t / 2";
+  if (!finite_nonneg(o.field_step_t)) return "field_step_t must be finite and >= 0 (0 off)";
+  if (!finite_nonneg(o.settling_time_constants))
+    return "settling_time_constants must be finite and >= 0";
+  if (!finite_nonneg(o.settling_unknown_tau_s))
+    return "settling_unknown_tau_s must be finite and >= 0";
+  if (o.max_points < 16) return "max_points must be at least 16";
+  return {};
+}
+
+SweepSegmenter::SweepSegmenter(const SegmenterOptions& options)
+    : options_(options), error_(validate(options)), plateaus_(options.plateau) {}
+
+double SweepSegmenter::settle_s(const align::AlignedPoint& p) const {
+  return p.time_constant_s > 0.0 ? options_.settling_time_constants * p.time_constant_s
+                                 : options_.settling_unknown_tau_s;
+}
+
+// Overlapping windows merge; the one ending last names the reason.
+void SweepSegmenter::start_settling(double until_s, SettleReason reason) {
+  if (!settling_ || until_s >= settle_until_s_) {
+    settling_ = true;
+    settle_until_s_ = until_s;
+    settle_reason_ = reason;
+  }
+}
+
+void SweepSegmenter::count_settling(SettleReason reason) {
+  switch (reason) {
+    case SettleReason::temperature_change: ++counts_.settling.temperature_change; break;
+    case SettleReason::field_step: ++counts_.settling.field_step; break;
+    case SettleReason::field_reversal: ++counts_.settling.field_reversal; break;
+    case SettleReason::lockin_setting: ++counts_.settling.range_or_time_constant; break;
+  }
+}
+
+void SweepSegmenter::push(std::span<const align::AlignedPoint> points, SegmentOutput& out) {
+  for (const auto& p : points) push(p, out);
+}
+
+void SweepSegmenter::push(const align::AlignedPoint& p, SegmentOutput& out) {
+  ++counts_.points_received;
+  const bool valid = std::isfinite(p.t_s) && std::isfinite(p.field_t) &&
+                     std::isfinite(p.temperature_k) && p.temperature_k > 0.0;
+  if (!error_.empty() || !valid || (have_previous_ && p.t_s < previous_.t_s)) {
+    ++counts_.refused;
+    return;
+  }
+
+  const std::size_t plateaus_before = out.plateaus.size();
+  const bool temperature_changed = plateaus_.push(p.t_s, p.temperature_k, out.plateaus);
+  counts_.plateaus += out.plateaus.size() - plateaus_before;
+
+  if (temperature_changed) start_settling(p.t_s + settle_s(p), SettleReason::temperature_change);
+  if (have_previous_) {
+    if (p.range_v != previous_.range_v || p.time_constant_s != previous_.time_constant_s)
+      start_settling(p.t_s + settle_s(p), SettleReason::lockin_setting);
+    if (options_.field_step_t > 0.0 &&
+        std::abs(p.field_t - previous_.field_t) > options_.field_step_t)
+      start_settling(p.t_s + settle_s(p), SettleReason::field_step);
+  }
+  previous_ = p;
+  have_previous_ = true;
+
+  if (settling_ && p.t_s < settle_until_s_) {
+    count_settling(settle_reason_);
+    return;
+  }
+  add_to_run({p, plateaus_.run()}, out);
+}
+
+void SweepSegmenter::add_to_run(const Held& h, SegmentOutput& out) {
+  if (run_.size() >= options_.max_points) close_run(run_.size(), true, out);
+
+  const double b = h.point.field_t;
+  const double tol = options_.reversal_tolerance_t;
+  if (run_.empty()) {
+    run_.push_back(h);
+    extreme_ = low_ = high_ = 0;
+    return;
+  }
+  switch (direction_) {
+    case RunDirection::unknown: {
+      // Until now high - low <= tol, so a point more than tol from one end
+      // is a new extreme at the other, and fixes the direction.
+      run_.push_back(h);
+      const std::size_t i = run_.size() - 1;
+      if (b - run_[low_].point.field_t > tol) {
+        direction_ = RunDirection::up;
+        extreme_ = i;
+      } else if (run_[high_].point.field_t - b > tol) {
+        direction_ = RunDirection::down;
+        extreme_ = i;
+      }
+      if (b >= run_[high_].point.field_t) high_ = i;
+      if (b <= run_[low_].point.field_t) low_ = i;
+      return;
+    }
+    case RunDirection::up:
+      if (b >= run_[extreme_].point.field_t - tol) {
+        run_.push_back(h);
+        if (b >= run_[extreme_].point.field_t) extreme_ = run_.size() - 1;
+        return;
+      }
+      break;
+    case RunDirection::down:
+      if (b <= run_[extreme_].point.field_t + tol) {
+        run_.push_back(h);
+        if (b <= run_[extreme_].point.field_t) extreme_ = run_.size() - 1;
+        return;
+      }
+      break;
+  }
+  reverse(h, out);
+}
+
+// The field has turned: the run ends at its extreme, the points after it
+// begin the next run (less those still settling after the turn).
+void SweepSegmenter::reverse(const Held& h, SegmentOutput& out) {
+  const RunDirection next =
+      direction_ == RunDirection::up ? RunDirection::down : RunDirection::up;
+  const double turn_t = run_[extreme_].point.t_s;
+  close_run(extreme_ + 1, false, out);
+  direction_ = next;
+
+  const double until = turn_t + settle_s(h.point);
+  start_settling(until, SettleReason::field_reversal);
+  std::size_t settled = 0;
+  while (settled < run_.size() && run_[settled].point.t_s < until) ++settled;
+  counts_.settling.field_reversal += settled;
+  run_.erase(run_.begin(), run_.begin() + static_cast<std::ptrdiff_t>(settled));
+  if (h.point.t_s < until)
+    ++counts_.settling.field_reversal;
+  else
+    run_.push_back(h);
+
+  extreme_ = 0;
+  for (std::size_t i = 1; i < run_.size(); ++i) {
+    const double b = run_[i].point.field_t, e = run_[extreme_].point.field_t;
+    if (next == RunDirection::up ? b >= e : b <= e) extreme_ = i;
+  }
+}
+
+// Closes run_[0, end) (emitting it if it qualifies) and keeps the rest. A
+// truncated close keeps nothing and forgets the direction.
+void SweepSegmenter::close_run(std::size_t end, bool truncated, SegmentOutput& out) {
+  if (end > 0) emit(0, end - 1, direction_, truncated, out);
+  run_.erase(run_.begin(), run_.begin() + static_cast<std::ptrdiff_t>(end));
+  if (truncated) {
+    direction_ = RunDirection::unknown;
+    extreme_ = low_ = high_ = 0;
+  }
+}
+
+void SweepSegmenter::emit(std::size_t first, std::size_t last, RunDirection dir, bool truncated,
+                          SegmentOutput& out) {
+  auto reject = [&] {
+    if (truncated)
+      ++counts_.truncated_discarded;
+    else
+      ++counts_.runs_short;
+  };
+  if (dir == RunDirection::unknown) {
+    reject();
+    return;
+  }
+  // Trim to the traverse between the dwell at each end. For a down run the
+  // same holds with the field's sign reversed.
+  const double sign = dir == RunDirection::up ? 1.0 : -1.0;
+  const double tol = options_.reversal_tolerance_t;
+  auto f = [&](std::size_t i) { return sign * run_[i].point.field_t; };
+  double lo = f(first), hi = f(first);
+  for (std::size_t i = first; i <= last; ++i) {
+    lo = std::min(lo, f(i));
+    hi = std::max(hi, f(i));
+  }
+  std::size_t s = first;
+  for (std::size_t i = first; i <= last; ++i)
+    if (f(i) <= lo + tol) s = i;
+  std::size_t e = last;
+  for (std::size_t i = s; i <= last; ++i)
+    if (f(i) >= hi - tol) {
+      e = i;
+      break;
+    }
+  counts_.dwell_points += (s - first) + (last - e);
+
+  Sweep sw;
+  sw.direction = dir == RunDirection::up ? Direction::up : Direction::down;
+  sw.field_min_t = run_[s].point.field_t;
+  sw.field_max_t = sw.field_min_t;
+  TemperatureAccumulator acc;
+  for (std::size_t i = s; i <= e; ++i) {
+    const auto& p = run_[i].point;
+    sw.field_min_t = std::min(sw.field_min_t, p.field_t);
+    sw.field_max_t = std::max(sw.field_max_t, p.field_t);
+  }
+  const double half = options_.min_span_t / 2.0;
+  if (!(sw.field_min_t <= -half && sw.field_max_t >= half)) {
+    reject();
+    return;
+  }
+  sw.points.reserve(e - s + 1);
+  for (std::size_t i = s; i <= e; ++i) {
+    const auto& p = run_[i].point;
+    sw.points.push_back(p);
+    acc.add(p.temperature_k);
+    if (p.overload) ++sw.n_overload;
+  }
+  sw.index = next_sweep_index_++;
+  sw.t_start_s = run_[s].point.t_s;
+  sw.t_end_s = run_[e].point.t_s;
+  sw.temperature = acc.stats();
+  sw.temperature_run = run_[s].temperature_run;
+  // Runs are numbered in time order, so first == last means one run.
+  sw.temperature_unstable = run_[s].temperature_run != run_[e].temperature_run;
+  sw.truncated = truncated;
+  ++counts_.sweeps;
+  if (sw.temperature_unstable) ++counts_.sweeps_temperature_unstable;
+  if (truncated) ++counts_.sweeps_truncated;
+  out.sweeps.push_back(std::move(sw));
+}
+
+void SweepSegmenter::finish(SegmentOutput& out) {
+  if (!run_.empty()) close_run(run_.size(), false, out);
+  direction_ = RunDirection::unknown;
+  extreme_ = low_ = high_ = 0;
+  const std::size_t before = out.plateaus.size();
+  plateaus_.finish(out.plateaus);
+  counts_.plateaus += out.plateaus.size() - before;
+}
+
+}  // namespace lphi::segment

@@ -1,0 +1,249 @@
+// Segmenting one sample's aligned points into temperature plateaus and field
+// sweeps, in event time.
+//
+// PlateauDetector: a temperature plateau is a maximal run of consecutive
+// points whose temperatures stay within a relative spread,
+//   (T_max - T_min) <= relative_spread * T_mean      (over the run),
+// lasting at least min_duration_s (t_last - t_first). Runs are grown
+// greedily: the first point that would break the criterion ends the run and
+// starts the next one. Every run gets an index (0, 1, 2, ... in time order);
+// a run that lasts long enough is reported as a Plateau with its temperature
+// statistics when it ends. Runs are what a "temperature change" means below:
+// a sweep whose points do not all lie in one run straddles a change. Because
+// the criterion is the full range max - min, set relative_spread to several
+// times the thermometer's relative noise (the range of N Gaussian readings
+// grows like 2 sqrt(2 ln N) standard deviations: about 8 for N = 1e4).
+//
+// SweepSegmenter: a field sweep is a run of points in which B moves in one
+// direction, monotonic within reversal_tolerance_t (B may fall back by up to
+// that much, noise, without ending an up run), reaching from below
+// -min_span_t/2 to above +min_span_t/2. The run ends at a reversal (B more
+// than the tolerance behind the run's extreme); the points after the extreme
+// start the next run, in the other direction. A closed run is trimmed to its
+// traverse: from the last point within the tolerance of its starting
+// extreme to the first point within the tolerance of its final one, so that
+// a magnet dwelling at either end does not stretch the sweep over the dwell
+// (the dropped points are counted in dwell_points; a ramp also loses its
+// readings within the tolerance of each end, at most reversal_tolerance_t
+// of field, which a fit does not miss). A trimmed run covering
+// the span is emitted as a Sweep; others are counted and discarded.
+//
+// Temperature. A sweep whose points do not all lie in one temperature run
+// (a plateau boundary, or a spread above the criterion) is marked
+// temperature_unstable: it is emitted, so that it can be seen and alerted
+// on, but must be kept out of L_phi(T).
+//
+// Settling. A lock-in output lags its input by several time constants tau;
+// points within settle = settling_time_constants * tau (tau of the point that
+// triggered; settling_unknown_tau_s when the lock-in does not report tau)
+// after one of these are excluded from sweeps and counted by reason:
+//   - a temperature change: a point that starts a new temperature run;
+//   - a field step: |B_i - B_(i-1)| > field_step_t between consecutive
+//     points (0 disables; for magnets stepped rather than ramped);
+//   - a field reversal: after the extreme of a run (points of the new run
+//     already taken in are removed, later ones excluded);
+//   - a change of the lock-in's input range or time constant.
+// Excluded points still feed the plateau detector (temperature does not
+// settle with the lock-in).
+//
+// Bounded memory. The open run holds at most max_points points. A run that
+// reaches the limit is closed there: emitted with truncated = true when it
+// covers the span, else counted in truncated_discarded; segmentation then
+// starts afresh (direction unknown) with the next point. Choose max_points
+// above the number of points a real sweep has (20 Hz for a 30 min sweep is
+// 36000). The PlateauDetector holds O(1) state.
+//
+// Cost and determinism. Every point is appended once and moved at most once
+// more (the tail after an extreme); a closed sweep is scanned once: amortized
+// O(1) per point. The output depends only on the sequence of points, never
+// on how it was split into calls (chunking invariance).
+//
+// Input: points with non-finite time, field or temperature, a temperature
+// <= 0, or a time earlier than the previous point's are refused and counted.
+//
+// No I/O, no threads, deterministic. Plain values, not safe for concurrent
+// use.
+#pragma once
+
+#include <cstddef>
+#include <span>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "analysis/alignment.hpp"
+
+namespace lphi::segment {
+
+// Temperature statistics over points (std is the sample standard deviation,
+// 0 for a single point).
+struct TemperatureStats {
+  std::size_t n = 0;
+  double mean_k = 0.0;
+  double std_k = 0.0;
+  double min_k = 0.0;
+  double max_k = 0.0;
+  bool operator==(const TemperatureStats&) const = default;
+};
+
+// Welford's running mean and variance (B. P. Welford, Technometrics 4, 419
+// (1962)): one pass, numerically stable.
+class TemperatureAccumulator {
+ public:
+  void add(double temperature_k);
+  TemperatureStats stats() const;
+  std::size_t n() const { return n_; }
+  double mean_k() const { return mean_; }
+  double min_k() const { return min_; }
+  double max_k() const { return max_; }
+
+ private:
+  std::size_t n_ = 0;
+  double mean_ = 0.0, m2_ = 0.0, min_ = 0.0, max_ = 0.0;
+};
+
+struct PlateauOptions {
+  double relative_spread = 0.02;  // (T_max - T_min) / T_mean within a run
+  double min_duration_s = 300.0;  // a run at least this long is a plateau
+};
+
+struct Plateau {
+  std::size_t run = 0;  // index of the temperature run it is
+  double t_start_s = 0.0, t_end_s = 0.0;
+  TemperatureStats temperature;
+  bool operator==(const Plateau&) const = default;
+};
+
+class PlateauDetector {
+ public:
+  explicit PlateauDetector(const PlateauOptions& options = {});
+
+  // Feeds one reading (finite, T > 0, time non-decreasing: the caller
+  // checks). Appends to `out` the plateau that this reading ends, if the run
+  // it ends qualifies. Returns true when the reading starts a new run after
+  // an earlier one (a temperature change), false otherwise.
+  bool push(double t_s, double temperature_k, std::vector<Plateau>& out);
+  // Ends the current run (end of a recording).
+  void finish(std::vector<Plateau>& out);
+
+  std::size_t run() const { return run_; }  // index of the current run
+  bool started() const { return acc_.n() > 0; }
+
+ private:
+  void close(std::vector<Plateau>& out);
+  PlateauOptions options_;
+  TemperatureAccumulator acc_;
+  double t_start_s_ = 0.0, t_last_s_ = 0.0;
+  std::size_t run_ = 0;
+};
+
+enum class Direction { up, down };
+std::string_view direction_name(Direction d);  // "up", "down"
+
+struct Sweep {
+  std::size_t index = 0;             // 0, 1, 2, ... in the order emitted
+  Direction direction = Direction::up;
+  double t_start_s = 0.0, t_end_s = 0.0;
+  double field_min_t = 0.0, field_max_t = 0.0;
+  std::vector<align::AlignedPoint> points;  // in time order
+  TemperatureStats temperature;
+  std::size_t temperature_run = 0;   // run of its first point
+  bool temperature_unstable = false; // straddles a temperature change
+  bool truncated = false;            // closed at max_points
+  std::size_t n_overload = 0;        // points the lock-in flagged as overloaded
+  bool operator==(const Sweep&) const = default;
+};
+
+struct SegmenterOptions {
+  PlateauOptions plateau;
+  double min_span_t = 0.1;             // must reach below -span/2 and above +span/2
+  double reversal_tolerance_t = 1e-3;  // set above the field readings' noise
+  double field_step_t = 0.0;           // step between consecutive points; 0 off
+  double settling_time_constants = 5.0;  // 5 tau: a 6 dB/oct filter within 1%
+  double settling_unknown_tau_s = 1.0;   // settle when tau is not reported
+  std::size_t max_points = 200000;
+};
+
+// Empty when usable, else what is wrong.
+std::string validate(const SegmenterOptions& options);
+
+struct SettlingCounts {
+  std::size_t temperature_change = 0;
+  std::size_t field_step = 0;
+  std::size_t field_reversal = 0;
+  std::size_t range_or_time_constant = 0;
+  std::size_t total() const {
+    return temperature_change + field_step + field_reversal + range_or_time_constant;
+  }
+  bool operator==(const SettlingCounts&) const = default;
+};
+
+struct SegmentCounts {
+  std::size_t points_received = 0;
+  std::size_t refused = 0;             // non-finite, T <= 0, or out of order
+  SettlingCounts settling;             // excluded, by reason
+  std::size_t dwell_points = 0;        // trimmed from the ends of runs
+  std::size_t runs_short = 0;          // closed runs not covering the span
+  std::size_t truncated_discarded = 0; // runs at max_points not covering the span
+  std::size_t sweeps = 0;
+  std::size_t sweeps_temperature_unstable = 0;
+  std::size_t sweeps_truncated = 0;
+  std::size_t plateaus = 0;
+  bool operator==(const SegmentCounts&) const = default;
+};
+
+struct SegmentOutput {
+  std::vector<Plateau> plateaus;
+  std::vector<Sweep> sweeps;
+};
+
+class SweepSegmenter {
+ public:
+  // Options must pass validate(); otherwise error() is set and every point
+  // is refused.
+  explicit SweepSegmenter(const SegmenterOptions& options = {});
+
+  // Appends the plateaus and sweeps completed by these points to `out`.
+  void push(const align::AlignedPoint& p, SegmentOutput& out);
+  void push(std::span<const align::AlignedPoint> points, SegmentOutput& out);
+  // Closes the open run and the current temperature run (end of a
+  // recording): emits them if they qualify.
+  void finish(SegmentOutput& out);
+
+  const SegmentCounts& counts() const { return counts_; }
+  const std::string& error() const { return error_; }
+  std::size_t buffered_points() const { return run_.size(); }
+
+ private:
+  enum class RunDirection { unknown, up, down };
+  enum class SettleReason { temperature_change, field_step, field_reversal, lockin_setting };
+  struct Held {
+    align::AlignedPoint point;
+    std::size_t temperature_run;
+  };
+  double settle_s(const align::AlignedPoint& p) const;
+  void start_settling(double until_s, SettleReason reason);
+  void count_settling(SettleReason reason);
+  void reverse(const Held& h, SegmentOutput& out);
+  void add_to_run(const Held& h, SegmentOutput& out);
+  void close_run(std::size_t end, bool truncated, SegmentOutput& out);
+  void emit(std::size_t first, std::size_t last, RunDirection dir, bool truncated,
+            SegmentOutput& out);
+
+  SegmenterOptions options_;
+  std::string error_;
+  SegmentCounts counts_;
+  PlateauDetector plateaus_;
+  bool have_previous_ = false;
+  align::AlignedPoint previous_;
+  bool settling_ = false;  // a settling window has been opened
+  double settle_until_s_ = 0.0;
+  SettleReason settle_reason_ = SettleReason::temperature_change;
+  std::vector<Held> run_;
+  RunDirection direction_ = RunDirection::unknown;
+  std::size_t extreme_ = 0;  // index in run_ of the run's extreme so far
+  std::size_t low_ = 0, high_ = 0;  // while the direction is unknown
+  std::size_t next_sweep_index_ = 0;
+};
+
+}  // namespace lphi::segment
