@@ -1,7 +1,7 @@
 // Aligner: linear interpolation in time, the max-age rule, arrival-order
 // independence, bounded buffers and refused input.
 //
-// The reference for the stream tests is a direct transcription of the rule in
+// The reference for the stream tests is a direct, brute-force restatement of the rule in
 // analysis/alignment.hpp (for each lock-in reading, search all thermometer and
 // field readings for its neighbours), written here without the aligner's
 // buffering, so the incremental version is checked against the definition.
