@@ -1,10 +1,12 @@
 #include "analysis/sweep_fit.hpp"
 
-#include <ceres/ceres.h>
+#include <ceres/tiny_solver.h>
 
 #include <Eigen/Dense>
 #include <algorithm>
+#include <array>
 #include <cmath>
+#include <cstdio>
 #include <limits>
 #include <string>
 #include <vector>
@@ -134,72 +136,111 @@ Values unpack(const Layout& l, const double* theta) {
   return v;
 }
 
-// Weighted residuals w_i (f(B_i) - y_i) and, when jacobian is not null, their
-// derivatives (row-major, n x layout.size), all from the analytic gradients.
+// Weighted residuals w_i (f(B_i) - y_i) and their derivatives (column-major,
+// n x layout.size, column k at jacobian + k n), all from the analytic
+// gradients. Value and Jacobian come out of one pass because the model's
+// gradient functions return both for little more than the value alone.
 void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* theta,
               double* residuals, double* jacobian) {
   const Values v = unpack(l, theta);
-  const std::size_t p = static_cast<std::size_t>(l.size);
-  for (std::size_t i = 0; i < d.size(); ++i) {
+  const std::size_t n = d.size();
+  auto column = [&](int k) { return jacobian + static_cast<std::size_t>(k) * n; };
+  double* const j_lphi = column(l.ln_lphi);
+  double* const j_lso = l.ln_lso >= 0 ? column(l.ln_lso) : nullptr;
+  double* const j_alpha = l.alpha >= 0 ? column(l.alpha) : nullptr;
+  double* const j_offset = l.offset >= 0 ? column(l.offset) : nullptr;
+  double* const j_background = l.background >= 0 ? column(l.background) : nullptr;
+  for (std::size_t i = 0; i < n; ++i) {
     const double b = d.field_t[i];
     const double w = d.weight[i];
-    const double extra = v.offset + v.background * b * b;
-    if (jacobian == nullptr) {
-      residuals[i] = w * (shape.value(b, v.lphi_m, v.lso_m, v.alpha) + extra - d.y[i]);
-      continue;
-    }
     const mc::ModelGradient g = shape.gradient(b, v.lphi_m, v.lso_m, v.alpha);
-    residuals[i] = w * (g.value + extra - d.y[i]);
-    double* row = jacobian + i * p;
-    row[l.ln_lphi] = w * g.d_ln_lphi;
-    if (l.ln_lso >= 0) row[l.ln_lso] = w * g.d_ln_lso;
-    if (l.alpha >= 0) row[l.alpha] = w * g.d_alpha;
-    if (l.offset >= 0) row[l.offset] = w;
-    if (l.background >= 0) row[l.background] = w * b * b;
+    residuals[i] = w * (g.value + v.offset + v.background * b * b - d.y[i]);
+    j_lphi[i] = w * g.d_ln_lphi;
+    if (j_lso != nullptr) j_lso[i] = w * g.d_ln_lso;
+    if (j_alpha != nullptr) j_alpha[i] = w * g.d_alpha;
+    if (j_offset != nullptr) j_offset[i] = w;
+    if (j_background != nullptr) j_background[i] = w * b * b;
   }
 }
 
-// All residuals of the sweep in one cost function: one model-and-Jacobian
-// pass per Ceres evaluation instead of a residual block per point. The last
-// evaluation with a Jacobian is kept: Ceres evaluates the Jacobian at every
-// accepted point, so the covariance at the solution usually costs nothing.
-class SweepCost final : public ceres::CostFunction {
+// Two evaluations of one LM pass: the current iterate (the last point whose
+// Jacobian the solver asked for) and the latest trial point. The solver asks
+// for a trial point's residuals, then, once it accepts the step, for its
+// Jacobian too; each model pass computes both, so every point costs one pass,
+// and the covariance at the solution reuses the pass at the solution. The
+// buffers are sized once per pass; nothing is allocated inside the LM loop.
+class Evaluations {
  public:
-  SweepCost(const Shape& shape, const Layout& layout, const Data& data)
+  Evaluations(const Shape& shape, const Layout& layout, const Data& data)
       : shape_(shape), layout_(layout), data_(data) {
-    set_num_residuals(static_cast<int>(data.size()));
-    mutable_parameter_block_sizes()->push_back(layout.size);
-  }
-  bool Evaluate(double const* const* parameters, double* residuals,
-                double** jacobians) const override {
-    double* jacobian = jacobians != nullptr ? jacobians[0] : nullptr;
-    evaluate(shape_, layout_, data_, parameters[0], residuals, jacobian);
-    if (jacobian != nullptr) {
-      const std::size_t n = data_.size(), p = static_cast<std::size_t>(layout_.size);
-      cached_theta_.assign(parameters[0], parameters[0] + p);
-      cached_residuals_.assign(residuals, residuals + n);
-      cached_jacobian_.assign(jacobian, jacobian + n * p);
+    const std::size_t p = static_cast<std::size_t>(layout.size);
+    for (Slot& s : slots_) {
+      s.theta.assign(p, 0.0);
+      s.residuals.assign(data.size(), 0.0);
+      s.jacobian.assign(data.size() * p, 0.0);
     }
-    return true;
   }
-  // Residuals and row-major Jacobian at theta, from the cache when possible.
-  void at(const std::vector<double>& theta, std::vector<double>& residuals,
-          std::vector<double>& jacobian) const {
-    if (theta == cached_theta_) {
-      residuals = cached_residuals_;
-      jacobian = cached_jacobian_;
-      return;
+  struct Slot {
+    std::vector<double> theta;
+    std::vector<double> residuals;  // n
+    std::vector<double> jacobian;   // n x p, column-major
+    bool valid = false;
+  };
+  // The evaluation at theta; made now unless one of the two slots holds it.
+  // A request for the Jacobian marks theta as the iterate, which the next
+  // new point must not overwrite.
+  const Slot& at(const double* theta, bool iterate) {
+    std::size_t k = 0;
+    while (k < slots_.size() && !holds(slots_[k], theta)) ++k;
+    if (k == slots_.size()) {
+      k = 1 - iterate_;
+      Slot& s = slots_[k];
+      evaluate(shape_, layout_, data_, theta, s.residuals.data(), s.jacobian.data());
+      std::copy(theta, theta + s.theta.size(), s.theta.begin());
+      s.valid = true;
     }
-    residuals.resize(data_.size());
-    jacobian.resize(data_.size() * static_cast<std::size_t>(layout_.size));
-    evaluate(shape_, layout_, data_, theta.data(), residuals.data(), jacobian.data());
+    if (iterate) iterate_ = k;
+    return slots_[k];
   }
 
  private:
+  static bool holds(const Slot& s, const double* theta) {
+    return s.valid && std::equal(s.theta.begin(), s.theta.end(), theta);
+  }
   const Shape& shape_;
   const Layout& layout_;
   const Data& data_;
-  mutable std::vector<double> cached_theta_, cached_residuals_, cached_jacobian_;
+  std::array<Slot, 2> slots_;
+  std::size_t iterate_ = 0;
+};
+
+double sum_of_squares(const std::vector<double>& r) {
+  double sum = 0.0;
+  for (double x : r) sum += x * x;
+  return sum;
+}
+
+// The sweep as a ceres::TinySolver function with P parameters (fixed at
+// compile time, so the normal equations are small fixed-size products) and
+// one residual per point.
+template <int P>
+class SweepResiduals {
+ public:
+  using Scalar = double;
+  enum { NUM_RESIDUALS = Eigen::Dynamic, NUM_PARAMETERS = P };
+
+  SweepResiduals(std::size_t n, Evaluations& evaluations) : n_(n), evaluations_(evaluations) {}
+  int NumResiduals() const { return static_cast<int>(n_); }
+  bool operator()(const double* theta, double* residuals, double* jacobian) const {
+    const Evaluations::Slot& e = evaluations_.at(theta, jacobian != nullptr);
+    std::copy(e.residuals.begin(), e.residuals.end(), residuals);
+    if (jacobian != nullptr) std::copy(e.jacobian.begin(), e.jacobian.end(), jacobian);
+    return true;
+  }
+
+ private:
+  std::size_t n_;
+  Evaluations& evaluations_;
 };
 
 // Linear least squares for the parameters that enter linearly (alpha when
@@ -376,10 +417,96 @@ struct PassResult {
   std::string termination;
 };
 
-// One LM solve. Lengths are clamped into the bounds before the solve and
-// checked against them afterwards rather than given to Ceres as bounds: a
-// bounded problem makes Ceres add a projected line search that costs extra
-// Jacobian evaluations on every iteration.
+// Convergence, as in Ceres' defaults for a small problem: the chi-square
+// changes by less than kFunctionTolerance of itself, or the step is below
+// kParameterTolerance relative, or the (Jacobi-scaled) gradient's largest
+// entry is below kGradientTolerance. Residuals are of order one (see the
+// header), so the cost is ~n/2 in units of the noise; a chi-square change
+// ~1e-7 n means the step before the last was ~0.01 standard errors for
+// n <= 1e4, and Gauss-Newton steps near the minimum shrink quadratically, so
+// the solution sits far closer than that to the minimum.
+constexpr double kFunctionTolerance = 1e-7;
+constexpr double kParameterTolerance = 1e-8;
+constexpr double kGradientTolerance = 1e-10;
+// TinySolver's function tolerance is absolute (in chi-square); it is set
+// from the chi-square at the start of a solve, and the solve is resumed with
+// a tighter one while the chi-square fell by more than this factor.
+constexpr double kToleranceRefresh = 0.5;
+
+template <int P>
+PassResult tiny_solve(std::size_t n, Evaluations& evaluations, int max_iterations,
+                      std::vector<double>& theta, std::vector<double>& residuals,
+                      std::vector<double>& jacobian) {
+  using Solver = ceres::TinySolver<SweepResiduals<P>>;
+  const SweepResiduals<P> function(n, evaluations);
+  Solver solver;
+  solver.options.gradient_tolerance = kGradientTolerance;
+  solver.options.parameter_tolerance = kParameterTolerance;
+  typename Solver::Parameters x = Eigen::Map<const Eigen::Matrix<double, P, 1>>(theta.data());
+
+  PassResult r;
+  double chi2_scale = sum_of_squares(evaluations.at(x.data(), true).residuals);
+  int left = max_iterations;
+  typename Solver::Status status = Solver::HIT_MAX_ITERATIONS;
+  double chi2 = chi2_scale;
+  while (left > 0) {
+    solver.options.function_tolerance = kFunctionTolerance * chi2_scale;
+    // TinySolver tries at most max_num_iterations - 1 steps.
+    solver.options.max_num_iterations = left + 1;
+    const typename Solver::Summary& summary = solver.Solve(function, &x);
+    status = summary.status;
+    const int steps = std::min(summary.iterations, left);
+    r.iterations += steps;
+    left -= steps;
+    chi2 = 2.0 * summary.final_cost;
+    if (status != Solver::COST_CHANGE_TOO_SMALL || !(chi2 < kToleranceRefresh * chi2_scale) ||
+        steps == 0)
+      break;
+    chi2_scale = chi2;
+  }
+  std::copy(x.data(), x.data() + P, theta.begin());
+  const Evaluations::Slot& at_solution = evaluations.at(theta.data(), true);
+  residuals = at_solution.residuals;
+  jacobian = at_solution.jacobian;
+  chi2 = sum_of_squares(residuals);
+
+  r.converged = std::isfinite(chi2);
+  char message[160];
+  switch (status) {
+    case Solver::COST_CHANGE_TOO_SMALL:
+      std::snprintf(message, sizeof message,
+                    "function tolerance reached: |chi2 change| < %.0e of chi2 %.6g",
+                    kFunctionTolerance, chi2);
+      break;
+    case Solver::RELATIVE_STEP_SIZE_TOO_SMALL:
+      std::snprintf(message, sizeof message, "parameter tolerance reached: |step| < %.0e |x|",
+                    kParameterTolerance);
+      break;
+    case Solver::GRADIENT_TOO_SMALL:
+      std::snprintf(message, sizeof message,
+                    "gradient tolerance reached: max |scaled gradient| < %.0e",
+                    kGradientTolerance);
+      break;
+    case Solver::COST_TOO_SMALL:
+      std::snprintf(message, sizeof message, "chi2 %.3g is zero to double precision", chi2);
+      break;
+    case Solver::HIT_MAX_ITERATIONS:
+    default:
+      r.converged = false;
+      std::snprintf(message, sizeof message, "maximum number of iterations (%d) reached",
+                    max_iterations);
+      break;
+  }
+  if (!std::isfinite(chi2)) std::snprintf(message, sizeof message, "chi2 is not finite");
+  r.termination = message;
+  return r;
+}
+
+// One LM pass (Ceres' TinySolver: Levenberg-Marquardt on the normal
+// equations with Jacobi scaling, no per-solve set-up). Lengths are clamped
+// into the bounds before the solve and checked against them afterwards
+// rather than constrained during it. On return residuals and jacobian
+// (column-major, n x p) are those at theta.
 PassResult levenberg_marquardt(const Shape& shape, const Layout& l, const Data& d,
                                const Bounds& bounds, int max_iterations, std::vector<double>& theta,
                                std::vector<double>& residuals, std::vector<double>& jacobian) {
@@ -387,38 +514,17 @@ PassResult levenberg_marquardt(const Shape& shape, const Layout& l, const Data& 
     if (k >= 0)
       theta[static_cast<std::size_t>(k)] =
           std::clamp(theta[static_cast<std::size_t>(k)], bounds.ln_lower, bounds.ln_upper);
-
-  SweepCost cost(shape, l, d);
-  ceres::Problem::Options problem_options;
-  problem_options.cost_function_ownership = ceres::DO_NOT_TAKE_OWNERSHIP;
-  ceres::Problem problem(problem_options);
-  problem.AddResidualBlock(&cost, nullptr, theta.data());
-
-  ceres::Solver::Options options;
-  options.minimizer_type = ceres::TRUST_REGION;
-  options.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
-  options.linear_solver_type = ceres::DENSE_NORMAL_CHOLESKY;
-  options.max_num_iterations = max_iterations;
-  options.num_threads = 1;
-  options.logging_type = ceres::SILENT;
-  options.minimizer_progress_to_stdout = false;
-  // Residuals are of order one (see the header), so the cost is ~n/2 in
-  // units of the noise. Ceres stops after a step that lowers the cost by less
-  // than 1e-7 of itself, i.e. by a chi-square change ~1e-7 n; the step before
-  // the last was then ~0.01 standard errors for n <= 1e4, and Gauss-Newton
-  // steps near the minimum shrink quadratically, so the solution sits far
-  // closer than that to the minimum.
-  options.function_tolerance = 1e-7;
-  options.gradient_tolerance = 1e-10;
-  options.parameter_tolerance = 1e-8;
-
-  ceres::Solver::Summary summary;
-  ceres::Solve(options, &problem, &summary);
-  cost.at(theta, residuals, jacobian);
+  Evaluations evaluations(shape, l, d);
+  const std::size_t n = d.size();
+  switch (l.size) {
+    case 1: return tiny_solve<1>(n, evaluations, max_iterations, theta, residuals, jacobian);
+    case 2: return tiny_solve<2>(n, evaluations, max_iterations, theta, residuals, jacobian);
+    case 3: return tiny_solve<3>(n, evaluations, max_iterations, theta, residuals, jacobian);
+    case 4: return tiny_solve<4>(n, evaluations, max_iterations, theta, residuals, jacobian);
+    default: break;  // make_layout never gives more than 4 parameters
+  }
   PassResult r;
-  r.iterations = std::max(0, static_cast<int>(summary.iterations.size()) - 1);
-  r.converged = summary.termination_type == ceres::CONVERGENCE;
-  r.termination = summary.message;
+  r.termination = "unsupported number of parameters: " + std::to_string(l.size);
   return r;
 }
 
@@ -629,10 +735,10 @@ SweepFitResult fit_sweep(std::span<const conductance::DeltaSigmaPoint> points,
 
   PassResult pass;
   int total_iterations = 0;
-  std::vector<double> residuals, jacobian_rows;
+  std::vector<double> residuals, jacobian_columns;
   for (int round = 0; round < kMaxWindowPasses; ++round) {
     pass = levenberg_marquardt(shape, layout, data, length_bounds(shape, field_step, window),
-                               options.max_iterations, theta, residuals, jacobian_rows);
+                               options.max_iterations, theta, residuals, jacobian_columns);
     total_iterations += pass.iterations;
     if (options.window_t) break;
     const double next = next_window();
@@ -642,13 +748,17 @@ SweepFitResult fit_sweep(std::span<const conductance::DeltaSigmaPoint> points,
   // Covariance from the analytic Jacobian at the solution.
   const std::size_t n = data.size();
   const std::size_t p = static_cast<std::size_t>(layout.size);
-  const Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>>
-      jacobian(jacobian_rows.data(), static_cast<long>(n), static_cast<long>(p));
+  const Eigen::Map<const Eigen::MatrixXd> jacobian(jacobian_columns.data(), static_cast<long>(n),
+                                                   static_cast<long>(p));
   double chi2 = 0.0;
   for (double r : residuals) chi2 += r * r;
   const double dof = static_cast<double>(n) - static_cast<double>(p);
   const double chi2_red = dof > 0 ? chi2 / dof : kInf;
-  const Eigen::MatrixXd jtj = jacobian.transpose() * jacobian;
+  // J^T J column by column: p^2 dot products of length n, no general matrix
+  // product (whose blocking and temporaries cost more than the sums here).
+  Eigen::MatrixXd jtj(static_cast<long>(p), static_cast<long>(p));
+  for (long a = 0; a < static_cast<long>(p); ++a)
+    for (long b = 0; b <= a; ++b) jtj(a, b) = jtj(b, a) = jacobian.col(a).dot(jacobian.col(b));
   const Eigen::VectorXd scale = jtj.diagonal().cwiseSqrt().cwiseInverse();
   Eigen::MatrixXd covariance =
       Eigen::MatrixXd::Constant(static_cast<long>(p), static_cast<long>(p), kInf);

@@ -1,14 +1,14 @@
 // Fitting one symmetrized magnetoconductance sweep.
 //
 // The model (magnetoconductance.hpp) is fitted to Delta sigma_sq(B) by
-// Levenberg-Marquardt (Ceres, one cost function holding every residual of the
-// sweep; dense normal Cholesky, which for 2-5 parameters edges out dense QR)
-// with analytic derivatives from the models' *_grad functions. Positive
+// Levenberg-Marquardt (Ceres' TinySolver over every residual of the sweep at
+// once, on the normal equations, which for 1-4 parameters are cheap and well
+// enough conditioned after Jacobi scaling) with analytic derivatives from the models' *_grad functions. Positive
 // parameters (L_phi, L_so) are fitted as their logarithms; alpha, the
 // optional offset and the optional classical background c*B^2 enter linearly.
 // Residuals are in units of e^2/(pi h), or in units of the point errors when
 // those are given, so that they are of order one (in siemens, ~1e-5, they
-// would trip Ceres' absolute gradient tolerance).
+// would trip the solver's absolute gradient tolerance).
 //
 // Characteristic field B_c. The window rules below compare fields with the
 // field at which the model leaves its low-field regime:
@@ -56,7 +56,8 @@
 //                           (with an offset: 0.97 at a 20 B_phi window, 0.993
 //                           at 5 B_phi, 0.998 at 2 B_phi), so 0.995 marks a
 //                           window of about 4 B_phi or an equally poor sweep.
-//   not_converged           Ceres did not report convergence.
+//   not_converged           the solver did not report convergence (iteration
+//                           limit, or a chi-square that is not finite).
 //   outside_diffusive       (l known) window > B_tr, or L_phi < l.
 //   dimensionality_mismatch (geometry known) hln2d/hln2d_so: L_phi < t;
 //                           wire1d: L_phi < w or L_phi < t; kawabata3d:
@@ -111,7 +112,7 @@ enum class Flag {
   window_too_narrow,       // window below 2 B_c: L_phi poorly determined
   alpha_held,              // alpha not fitted freely (window too short)
   alpha_lphi_degenerate,   // |corr(alpha, ln L_phi)| > 0.995
-  not_converged,           // Ceres did not report convergence
+  not_converged,           // the solver did not report convergence
   outside_diffusive,       // window beyond B_tr, or L_phi < mean free path
   dimensionality_mismatch, // fitted L_phi inconsistent with the model's geometry
   too_few_points,          // fewer points in the window than needed
@@ -136,7 +137,7 @@ struct SweepFitResult {
   double b_phi_t = 0.0;
   int iterations = 0;                        // LM iterations, all window passes
   bool converged = false;
-  std::string termination;                   // Ceres' termination reason
+  std::string termination;                   // the solver's termination reason
   std::vector<Flag> flags;
   bool has(Flag f) const;
 };
