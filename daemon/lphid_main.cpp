@@ -15,6 +15,7 @@
 
 #include "daemon/config/config.hpp"
 #include "daemon/config/data_dir.hpp"
+#include "daemon/ingest/driver_host.hpp"
 #include "daemon/ingest/ingest_server.hpp"
 #include "daemon/store/writer.hpp"
 
@@ -132,6 +133,10 @@ int serve(const std::string& dir_option, const std::string& config_option, const
   io.limits = config.limits;
   io.time_backward_tolerance_s = config.time_backward_tolerance_s;
   io.time_future_tolerance_s = config.time_future_tolerance_s;
+  for (const auto& src : config.sources) {
+    if (src.time_future_tolerance_s) io.source_future_tolerance_s[src.name] = *src.time_future_tolerance_s;
+    if (src.driver != lphi::config::DriverType::none) io.driver_sources.insert(src.name);
+  }
   std::unique_ptr<lphi::ingest::IngestServer> server;
   if (auto s = lphi::ingest::IngestServer::create(context, io, *writer, sources, server); !s) {
     spdlog::critical("{}", s.message);
@@ -139,11 +144,23 @@ int serve(const std::string& dir_option, const std::string& config_option, const
     writer->stop();
     return 1;
   }
+  lphi::ingest::DriverHost drivers;
+  if (auto s = drivers.create(config, sources, *server); !s) {
+    spdlog::critical("{}", s.message);
+    std::cerr << "lphid: " << s.message << "\n";
+    server.reset();
+    writer->stop();
+    return 1;
+  }
+  if (drivers.size() > 0) server->set_driver_status([&drivers] { return drivers.status_json(); });
   if (auto e = lphi::config::write_endpoints_file(dir, io.endpoints)) spdlog::warn("{}", *e);
-  spdlog::info("lphid {} serving {} (ingest {}, control {}, {} sources)", ::getpid(), dir,
-               io.endpoints.ingest, io.endpoints.control, sources.size());
+  spdlog::info("lphid {} serving {} (ingest {}, control {}, {} sources, {} drivers)", ::getpid(), dir,
+               io.endpoints.ingest, io.endpoints.control, sources.size(), drivers.size());
+  drivers.start();
   sd_notify(0, "READY=1");
   server->run(stop_requested);
+  // The drivers stop before the server they hand readings to goes away.
+  drivers.stop();
   server.reset();
   writer.reset();
   spdlog::info("lphid stopped");

@@ -49,6 +49,28 @@ void print_human(const json& s) {
                 value_or_dash(src.at("age_s"), 1).c_str(), fixed(src.value("rate_per_s", 0.0), 1).c_str(),
                 static_cast<unsigned long long>(src.value("accepted", std::uint64_t{0})));
   }
+  if (!s.contains("drivers") || s.at("drivers").empty()) return;
+  // The instrument drivers lphid runs itself: is each instrument talking, and
+  // if not, what went wrong.
+  std::printf("\n%-20s %-11s %-22s %-10s %10s %10s %10s %8s %8s\n", "driver", "type", "address", "state",
+              "reading s", "readings", "buffered", "faults", "reconn");
+  for (const auto& d : s.at("drivers")) {
+    std::uint64_t faults = 0;
+    for (const auto& [name, n] : d.at("faults").items()) {
+      if (name != "reconnects") faults += n.get<std::uint64_t>();
+    }
+    std::printf("%-20s %-11s %-22s %-10s %10s %10llu %10llu %8llu %8llu\n", d.value("source", "").c_str(),
+                d.value("driver", "").c_str(), d.value("address", "").c_str(), d.value("state", "").c_str(),
+                value_or_dash(d.at("last_reading_age_s"), 1).c_str(),
+                static_cast<unsigned long long>(d.value("readings", std::uint64_t{0})),
+                static_cast<unsigned long long>(d.value("buffered", std::uint64_t{0})),
+                static_cast<unsigned long long>(faults),
+                static_cast<unsigned long long>(d.at("faults").value("reconnects", std::uint64_t{0})));
+    if (!d.value("identity", "").empty()) std::printf("    identity: %s\n", d.value("identity", "").c_str());
+    if (!d.value("last_error", "").empty() && d.value("state", "") != "connected") {
+      std::printf("    last error: %s\n", d.value("last_error", "").c_str());
+    }
+  }
 }
 
 }  // namespace

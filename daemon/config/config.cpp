@@ -1,6 +1,7 @@
 #include "daemon/config/config.hpp"
 
 #include <algorithm>
+#include <chrono>
 #include <cmath>
 #include <fstream>
 #include <functional>
@@ -150,7 +151,186 @@ class Checker {
   }
 };
 
+
+std::optional<std::chrono::milliseconds> milliseconds(Checker& c, const toml::node& n,
+                                                      const std::string& key, std::int64_t min,
+                                                      std::int64_t max) {
+  std::int64_t v = 0;
+  const std::size_t before = c.errors.size();
+  c.integer_to(v, min, max)(n, key);
+  if (c.errors.size() != before) return std::nullopt;
+  return std::chrono::milliseconds(v);
+}
+
+Handler ms_to(Checker& c, std::chrono::milliseconds& out, std::int64_t min, std::int64_t max) {
+  return [&c, &out, min, max](const toml::node& n, const std::string& key) {
+    if (auto v = milliseconds(c, n, key, min, max)) out = *v;
+  };
+}
+
+// "host:port", e.g. "127.0.0.1:5025" or "[::1]:5025".
+Handler address_to(Checker& c, drivers::ConnectionOptions& out) {
+  return [&c, &out](const toml::node& n, const std::string& key) {
+    if (!n.is_string()) return c.fail(n, key, "must be a string \"host:port\"");
+    const std::string text = n.as_string()->get();
+    const auto colon = text.rfind(':');
+    std::string host = colon == std::string::npos ? "" : text.substr(0, colon);
+    const std::string port = colon == std::string::npos ? "" : text.substr(colon + 1);
+    if (host.size() >= 2 && host.front() == '[' && host.back() == ']') host = host.substr(1, host.size() - 2);
+    long value = 0;
+    const bool digits = !port.empty() && port.size() <= 5 &&
+                        std::all_of(port.begin(), port.end(), [](char ch) { return ch >= '0' && ch <= '9'; });
+    if (digits) value = std::stol(port);
+    if (host.empty() || !digits || value < 1 || value > 65535) {
+      return c.fail(n, key, "must be \"host:port\" with a port 1-65535, not \"" + text + "\"");
+    }
+    out.host = host;
+    out.port = static_cast<std::uint16_t>(value);
+  };
+}
+
+// One [[source.field]] / [[source.query.field]] table.
+drivers::FieldMap parse_field(Checker& c, const toml::table& t, const std::string& p) {
+  drivers::FieldMap f;
+  std::int64_t index = 0;
+  c.table(t, p,
+          {{"index", c.integer_to(index, 0, 1000)},
+           {"key", c.string_to(f.key)},
+           {"quantity", c.string_to(f.quantity)},
+           {"scale", [&](const toml::node& n, const std::string& key) {
+              if (auto v = c.number(n, key)) f.scale = *v;
+            }}});
+  f.index = static_cast<std::size_t>(index);
+  c.require(t, p, {"quantity"});
+  return f;
+}
+
+// One [[source]] table, with its optional driver settings.
+SourceConfig parse_source(Checker& c, const toml::table& t, const std::string& p) {
+  const std::size_t errors_before = c.errors.size();
+  SourceConfig s;
+  std::string kind, driver;
+  drivers::ConnectionOptions connection;
+  drivers::OutletOptions outlet;
+  drivers::BackoffOptions backoff;
+  std::chrono::milliseconds poll_interval{1000}, reply_timeout{1000}, silence_timeout{10000};
+  std::optional<std::chrono::milliseconds> stall_after;
+  std::string identity_query = "*IDN?", mode = "connect", format = "csv";
+  std::vector<drivers::ScpiQuery> queries;
+  std::vector<drivers::FieldMap> fields;
+  std::int64_t buffer = static_cast<std::int64_t>(outlet.max_buffered_readings);
+  std::vector<std::string> driver_keys;  // given, to report them when there is no driver
+  auto driver_key = [&](const std::string& name, Handler h) {
+    return std::pair<const std::string, Handler>(
+        name, [&driver_keys, h, name](const toml::node& n, const std::string& key) {
+          driver_keys.push_back(name);
+          h(n, key);
+        });
+  };
+  c.table(t, p,
+          {{"name", c.string_to(s.name)},
+           {"kind", c.string_to(kind, {"lockin", "thermometer", "field"})},
+           {"time_future_tolerance_s", c.optional_positive_to(s.time_future_tolerance_s)},
+           {"driver", c.string_to(driver, {"scpi-tcp", "line-stream"})},
+           driver_key("address", address_to(c, connection)),
+           driver_key("terminator", c.string_to(connection.terminator)),
+           driver_key("connect_timeout_ms", ms_to(c, connection.connect_timeout, 1, 600000)),
+           driver_key("reconnect_min_ms", ms_to(c, backoff.min_delay, 1, 3600000)),
+           driver_key("reconnect_max_ms", ms_to(c, backoff.max_delay, 1, 3600000)),
+           driver_key("buffer_readings", c.integer_to(buffer, 1, 10000000)),
+           driver_key("stall_after_ms", [&](const toml::node& n, const std::string& key) {
+             stall_after = milliseconds(c, n, key, 1, 86400000);
+           }),
+           driver_key("poll_interval_ms", ms_to(c, poll_interval, 1, 86400000)),
+           driver_key("reply_timeout_ms", ms_to(c, reply_timeout, 1, 600000)),
+           driver_key("identity_query", c.string_to(identity_query)),
+           driver_key("query", c.array_of_tables([&](const toml::table& q, const std::string& qp) {
+             drivers::ScpiQuery query;
+             c.table(q, qp,
+                     {{"send", c.string_to(query.send)},
+                      {"field", c.array_of_tables([&](const toml::table& f, const std::string& fp) {
+                         query.fields.push_back(parse_field(c, f, fp));
+                       })}});
+             c.require(q, qp, {"send", "field"});
+             queries.push_back(std::move(query));
+           })),
+           driver_key("mode", c.string_to(mode, {"connect", "listen"})),
+           driver_key("format", c.string_to(format, {"csv", "json"})),
+           driver_key("silence_timeout_ms", ms_to(c, silence_timeout, 1, 86400000)),
+           driver_key("field", c.array_of_tables([&](const toml::table& f, const std::string& fp) {
+             fields.push_back(parse_field(c, f, fp));
+           }))});
+  c.require(t, p, {"name", "kind"});
+  if (auto k = protocol::parse_kind(kind)) s.kind = *k;
+  outlet.max_buffered_readings = static_cast<std::size_t>(buffer);
+
+  // Keys of one driver given for another (or for none) are mistakes, not options.
+  static const std::set<std::string> scpi_only = {"poll_interval_ms", "reply_timeout_ms", "identity_query", "query"};
+  static const std::set<std::string> stream_only = {"mode", "format", "silence_timeout_ms", "field"};
+  const std::size_t line = t.source().begin.line;
+  for (const auto& k : driver_keys) {
+    if (driver.empty()) {
+      c.errors.push_back({line, p + "." + k, "belongs to a driver: set driver = \"scpi-tcp\" or \"line-stream\""});
+    } else if (driver == "scpi-tcp" && stream_only.count(k) != 0) {
+      c.errors.push_back({line, p + "." + k, "is a line-stream setting, this source's driver is scpi-tcp"});
+    } else if (driver == "line-stream" && scpi_only.count(k) != 0) {
+      c.errors.push_back({line, p + "." + k, "is a scpi-tcp setting, this source's driver is line-stream"});
+    }
+  }
+  // The driver's own check only makes sense on settings that parsed.
+  if (driver.empty() || c.errors.size() != errors_before) return s;
+  if (std::find(driver_keys.begin(), driver_keys.end(), "address") == driver_keys.end()) {
+    c.errors.push_back({line, p + ".address", "is required with a driver"});
+    return s;
+  }
+  std::string problem;
+  if (driver == "scpi-tcp") {
+    s.driver = DriverType::scpi_tcp;
+    auto& d = s.scpi_tcp;
+    d.source = s.name;
+    d.kind = s.kind;
+    d.connection = connection;
+    d.backoff = backoff;
+    d.outlet = outlet;
+    d.poll_interval = poll_interval;
+    d.reply_timeout = reply_timeout;
+    if (stall_after) d.stall_after = *stall_after;
+    d.identity_query = identity_query;
+    d.queries = std::move(queries);
+    if (d.queries.empty()) {
+      c.errors.push_back({line, p + ".query", "scpi-tcp needs at least one [[" + p.substr(0, p.find('[')) + ".query]]"});
+      return s;
+    }
+    problem = drivers::validate(d);
+  } else {
+    s.driver = DriverType::line_stream;
+    auto& d = s.line_stream;
+    d.source = s.name;
+    d.kind = s.kind;
+    d.connection = connection;
+    d.backoff = backoff;
+    d.outlet = outlet;
+    d.mode = mode == "listen" ? drivers::LineStreamConfig::Mode::listen : drivers::LineStreamConfig::Mode::connect;
+    d.format = format == "json" ? drivers::LineStreamConfig::Format::json : drivers::LineStreamConfig::Format::csv;
+    d.silence_timeout = silence_timeout;
+    if (stall_after) d.stall_after = *stall_after;
+    d.fields = std::move(fields);
+    problem = drivers::validate(d);
+  }
+  if (!problem.empty() && !s.name.empty()) c.errors.push_back({line, p, problem});
+  return s;
+}
+
 }  // namespace
+
+std::string_view driver_type_name(DriverType type) {
+  switch (type) {
+    case DriverType::scpi_tcp: return "scpi-tcp";
+    case DriverType::line_stream: return "line-stream";
+    case DriverType::none: break;
+  }
+  return "none";
+}
 
 const SourceConfig* Config::find_source(std::string_view name) const {
   for (const auto& s : sources) {
@@ -197,14 +377,7 @@ std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
                           {"time_future_tolerance_s", c.positive_to(config.time_future_tolerance_s)}});
                })},
               {"source", c.array_of_tables([&](const toml::table& t, const std::string& p) {
-                 SourceConfig s;
-                 std::string kind;
-                 c.table(t, p,
-                         {{"name", c.string_to(s.name)},
-                          {"kind", c.string_to(kind, {"lockin", "thermometer", "field"})}});
-                 c.require(t, p, {"name", "kind"});
-                 if (auto k = protocol::parse_kind(kind)) s.kind = *k;
-                 config.sources.push_back(s);
+                 config.sources.push_back(parse_source(c, t, p));
                  source_lines.push_back(t.source().begin.line);
                })},
               {"sample", c.array_of_tables([&](const toml::table& t, const std::string& p) {

@@ -15,12 +15,27 @@
 
 #include "daemon/protocol/codec.hpp"
 #include "daemon/protocol/reading.hpp"
+#include "drivers/instrument/driver_config.hpp"
 
 namespace lphi::config {
+
+// How lphid itself reads a source: not at all (its readings come over the
+// ingest socket), or with one of the instrument drivers of drivers/instrument/.
+enum class DriverType { none, scpi_tcp, line_stream };
+
+std::string_view driver_type_name(DriverType type);
 
 struct SourceConfig {
   std::string name;
   protocol::SourceKind kind = protocol::SourceKind::lockin;
+  // Overrides [ingest] time_future_tolerance_s for this source, e.g. for a
+  // simulated instrument whose accelerated clock runs ahead of lphid's.
+  std::optional<double> time_future_tolerance_s;
+  DriverType driver = DriverType::none;
+  // The driver's settings, `source` and `kind` filled in; only the one named
+  // by `driver` is meaningful. outlet.first_seq is set by lphid at start.
+  drivers::ScpiTcpConfig scpi_tcp;
+  drivers::LineStreamConfig line_stream;
 };
 
 struct SampleConfig {

@@ -27,9 +27,41 @@ max_name_bytes = 64
 time_backward_tolerance_s = 60.0   # t may run back this far behind a source's last reading
 time_future_tolerance_s = 86400.0  # t may lie this far ahead of lphid's clock
 
+# A source's readings come over the ingest socket (lab scripts, lphi send),
+# unless the source has a driver: then lphid reads the instrument itself.
 [[source]]
 name = "lockin-a"
 kind = "lockin"             # lockin | thermometer | field
+# time_future_tolerance_s = 86400.0  # this source's own [ingest] tolerance
+driver = "scpi-tcp"         # scpi-tcp (lphid polls) | line-stream (the instrument pushes lines)
+address = "127.0.0.1:5025"  # host:port
+poll_interval_ms = 200      # one reading per poll, on a fixed schedule
+reply_timeout_ms = 1000     # per query; a timeout closes the connection and reconnects
+connect_timeout_ms = 2000
+reconnect_min_ms = 250      # reconnect delays double from this, with jitter,
+reconnect_max_ms = 30000    # ... up to this
+stall_after_ms = 5000       # connected, but no reading for this long: "stalled" in lphi status
+terminator = "\n"           # "\n" or "\r\n"
+identity_query = "*IDN?"    # asked on every connect, stored; "" asks nothing
+buffer_readings = 10000     # kept while the store falls behind; beyond, dropped (a gap)
+# Each poll sends the queries in order; each field of the comma-separated
+# reply maps to a quantity, in SI after `scale`. time_s is the instrument's
+# own clock (s since the Unix epoch); without it a reading gets its arrival time.
+[[source.query]]
+send = "MEAS:ALL?"
+[[source.query.field]]
+index = 0
+quantity = "time_s"
+[[source.query.field]]
+index = 1
+quantity = "x_v"            # x_v, y_v (required), frequency_hz, range_v, time_constant_s, overload
+[[source.query.field]]
+index = 2
+quantity = "y_v"
+scale = 1.0                 # value in SI = scale * value sent (1e-6 for a reply in uV)
+# A line-stream source instead has mode = "connect" | "listen",
+# format = "csv" | "json", silence_timeout_ms, and [[source.field]] tables
+# (index for csv, key for json; quantity; scale).
 
 [[source]]
 name = "mxc"

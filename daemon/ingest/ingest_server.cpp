@@ -85,7 +85,13 @@ store::Status IngestServer::create(zmq::context_t& context, const IngestOptions&
     rt->validated_t = state.last_t;
     rt->durable_seq = state.highest_seq;
     rt->last_t = state.last_t;
+    rt->future_tolerance_s = options.time_future_tolerance_s;
+    rt->has_driver = options.driver_sources.count(name) != 0;
+    if (auto t = options.source_future_tolerance_s.find(name); t != options.source_future_tolerance_s.end()) {
+      rt->future_tolerance_s = t->second;
+    }
     s->sources_[name] = std::move(rt);
+    s->inbox_[name];
   }
   s->wake_fd_ = ::eventfd(0, EFD_NONBLOCK | EFD_CLOEXEC);
   if (s->wake_fd_ < 0) return store::Status::failure("cannot create an eventfd");
@@ -133,6 +139,8 @@ void IngestServer::run(const std::atomic<bool>& stop) {
     }
     drain_completions();
     if (held_ && submit(*held_)) held_.reset();
+    if (!held_) drain_driver_inbox();
+    submit_identities();
     // Bounded work per wake-up so the control socket and the acks stay responsive.
     for (int i = 0; i < 64 && !held_ && (items[0].revents & ZMQ_POLLIN); ++i) {
       if (!(ingest_.get(zmq::sockopt::events) & ZMQ_POLLIN)) break;
@@ -208,6 +216,10 @@ void IngestServer::handle_hello(const Peer& peer, const json& message) {
                   "source \"" + hello.source + "\" is not in lphid's configuration");
   }
   const auto& s = *it->second;
+  if (s.has_driver) {
+    return refuse(peer, std::nullopt, Reason::source_has_driver,
+                  "source \"" + hello.source + "\" is read by lphid's own driver");
+  }
   reply(ingest_, peer,
         protocol::hello_reply_message(
             {s.name, s.state.kind, s.durable_seq ? *s.durable_seq + 1 : std::int64_t{0}}));
@@ -228,20 +240,29 @@ void IngestServer::handle_batch(const Peer& peer, const json& message) {
                   "source \"" + header.source + "\" is not in lphid's configuration");
   }
   SourceRuntime& source = *it->second;
+  if (source.has_driver) {
+    return refuse(peer, header.batch_id, Reason::source_has_driver,
+                  "source \"" + header.source + "\" is read by lphid's own driver");
+  }
   if (header.kind && *header.kind != source.state.kind) {
     return refuse(peer, header.batch_id, Reason::wrong_kind,
                   "source \"" + source.name + "\" is a " +
                       std::string(protocol::kind_name(source.state.kind)) + ", the batch says " +
                       std::string(protocol::kind_name(*header.kind)));
   }
+  accept_readings(peer, source, header.batch_id, *header.readings);
+}
+
+void IngestServer::accept_readings(const Peer& peer, SourceRuntime& source,
+                                   std::optional<std::uint64_t> batch_id, const json& readings_json) {
   Held held;
   held.peer = peer;
   held.source = &source;
-  held.ack.batch_id = header.batch_id;
+  held.ack.batch_id = batch_id;
   held.ack.source = source.name;
   held.job.source_id = source.state.id;
   held.job.readings = protocol::empty_readings(source.state.kind);
-  protocol::read_readings(*header.readings, source.state.kind, held.job.readings, held.ack.rejected);
+  protocol::read_readings(readings_json, source.state.kind, held.job.readings, held.ack.rejected);
 
   // The checks that need the source's history: a new reading's time may not
   // run back beyond the tolerance; no reading may lie far in the future.
@@ -250,7 +271,7 @@ void IngestServer::handle_batch(const Peer& peer, const json& message) {
   // Positions of the readings that passed, in the batch's readings array.
   std::vector<std::size_t> position;
   position.reserve(protocol::reading_count(held.job.readings));
-  for (std::size_t i = 0, r = 0; i < header.readings->size(); ++i) {
+  for (std::size_t i = 0, r = 0; i < readings_json.size(); ++i) {
     if (r < held.ack.rejected.size() && held.ack.rejected[r].index == i) {
       ++r;
     } else {
@@ -263,7 +284,7 @@ void IngestServer::handle_batch(const Peer& peer, const json& message) {
         std::size_t index = 0;
         for (auto& r : readings) {
           std::optional<std::string> why;
-          if (r.t > now + options_.time_future_tolerance_s) {
+          if (r.t > now + source.future_tolerance_s) {
             why = "t lies " + std::to_string(r.t - now) + " s ahead of lphid's clock";
           } else if ((!source.validated_seq || r.seq > *source.validated_seq) && source.validated_t &&
                      r.t < *source.validated_t - options_.time_backward_tolerance_s) {
@@ -296,7 +317,7 @@ void IngestServer::handle_batch(const Peer& peer, const json& message) {
   source.rejected += held.ack.rejected.size();
   if (!held.ack.rejected.empty() && log_limiter.allow(now)) {
     spdlog::warn("source {}: {} of {} readings refused, first: {} ({})", source.name,
-                 held.ack.rejected.size(), header.readings->size(),
+                 held.ack.rejected.size(), readings_json.size(),
                  protocol::reason_name(held.ack.rejected.front().reason),
                  held.ack.rejected.front().detail);
   }
@@ -376,6 +397,12 @@ void IngestServer::finish(Completion& c) {
 void IngestServer::refuse(const Peer& peer, std::optional<std::uint64_t> batch_id, Reason reason,
                           const std::string& detail) {
   counters_.refused_messages.add(reason);
+  if (peer.internal) {
+    // A driver's readings cannot be sent again (the driver handed them over):
+    // the store will show their sequence numbers as a gap.
+    spdlog::error("readings of a driver lost: {} ({})", protocol::reason_name(reason), detail);
+    return;
+  }
   if (log_limiter.allow(unix_now())) {
     spdlog::warn("message refused: {} ({})", protocol::reason_name(reason), detail);
   }
@@ -383,6 +410,7 @@ void IngestServer::refuse(const Peer& peer, std::optional<std::uint64_t> batch_i
 }
 
 void IngestServer::reply(zmq::socket_t& socket, const Peer& peer, const json& message) {
+  if (peer.internal) return;
   const std::string payload = protocol::encode_frame(message, peer.encoding);
   try {
     socket.send(zmq::buffer(peer.identity), zmq::send_flags::sndmore | zmq::send_flags::dontwait);
@@ -390,6 +418,83 @@ void IngestServer::reply(zmq::socket_t& socket, const Peer& peer, const json& me
     socket.send(zmq::buffer(payload), zmq::send_flags::dontwait);
   } catch (const zmq::error_t& e) {
     spdlog::debug("a reply could not be sent: {}", e.what());
+  }
+}
+
+bool IngestServer::offer_driver_readings(const std::string& source, protocol::Readings&& readings) {
+  {
+    std::lock_guard lock(inbox_mutex_);
+    auto it = inbox_.find(source);
+    if (it == inbox_.end() || it->second) return false;
+    it->second = std::move(readings);
+  }
+  const std::uint64_t one = 1;
+  [[maybe_unused]] auto r = ::write(wake_fd_, &one, sizeof one);
+  return true;
+}
+
+void IngestServer::offer_identity(const std::string& source, std::string identity) {
+  {
+    std::lock_guard lock(inbox_mutex_);
+    // Bounded: a driver reconnecting in a tight loop cannot grow this list.
+    if (inbox_identities_.size() >= 64) return;
+    inbox_identities_.emplace_back(source, std::move(identity));
+  }
+  const std::uint64_t one = 1;
+  [[maybe_unused]] auto r = ::write(wake_fd_, &one, sizeof one);
+}
+
+void IngestServer::set_driver_status(std::function<json()> provider) {
+  driver_status_ = std::move(provider);
+}
+
+void IngestServer::drain_driver_inbox() {
+  std::vector<std::pair<std::string, std::string>> identities;
+  {
+    std::lock_guard lock(inbox_mutex_);
+    identities.swap(inbox_identities_);
+  }
+  for (auto& [name, identity] : identities) {
+    auto it = sources_.find(name);
+    if (it == sources_.end()) continue;
+    SourceRuntime& s = *it->second;
+    if (identity != s.instrument_identity) {
+      spdlog::info("source {}: the instrument identifies as \"{}\"", name, identity);
+    }
+    s.instrument_identity = identity;
+    identities_to_store_.emplace_back(&s, std::move(identity));
+  }
+  Peer driver;
+  driver.internal = true;
+  for (auto& [name, slot] : inbox_) {
+    if (held_) return;  // the writer is full: the drivers wait
+    std::optional<protocol::Readings> readings;
+    {
+      std::lock_guard lock(inbox_mutex_);
+      readings.swap(slot);
+    }
+    if (!readings) continue;
+    // The readings go through the same checks as a batch from the socket.
+    json array = json::array();
+    std::visit(
+        [&](const auto& rs) {
+          for (const auto& r : rs) array.push_back(protocol::reading_to_json(r));
+        },
+        *readings);
+    accept_readings(driver, *sources_.at(name), std::nullopt, array);
+  }
+}
+
+void IngestServer::submit_identities() {
+  const double now = unix_now();
+  while (!identities_to_store_.empty()) {
+    auto& [source, identity] = identities_to_store_.front();
+    store::WriteJob job;
+    job.source_id = source->state.id;
+    job.readings = protocol::empty_readings(source->state.kind);
+    job.identity = store::InstrumentIdentity{identity, now};
+    if (!writer_.try_submit(job)) return;  // the writer is full: later
+    identities_to_store_.erase(identities_to_store_.begin());
   }
 }
 
@@ -435,8 +540,10 @@ json IngestServer::status() const {
     j["highest_seq"] = s->durable_seq ? json(*s->durable_seq) : json(nullptr);
     j["last_t"] = s->last_t ? json(*s->last_t) : json(nullptr);
     j["age_s"] = s->last_t ? json(now - *s->last_t) : json(nullptr);
+    if (!s->instrument_identity.empty()) j["identity"] = s->instrument_identity;
     sources.push_back(std::move(j));
   }
+  json drivers = driver_status_ ? driver_status_() : json::array();
   return {{"type", "status"},
           {"pid", ::getpid()},
           {"uptime_s", now - started_unix_},
@@ -455,7 +562,8 @@ json IngestServer::status() const {
             {"commit_max_s", w.commit_max_s},
             {"checkpoints", w.checkpoints},
             {"backpressure", held_.has_value()}}},
-          {"sources", std::move(sources)}};
+          {"sources", std::move(sources)},
+          {"drivers", std::move(drivers)}};
 }
 
 }  // namespace lphi::ingest

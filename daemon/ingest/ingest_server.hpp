@@ -16,6 +16,15 @@
 //
 // The control socket (ROUTER, JSON request/reply) answers {"type":"status"}.
 //
+// lphid's own instrument drivers hand their readings in through
+// offer_driver_readings(). They take exactly the path of a batch from the
+// socket -- the same checks, counters, duplicate and gap handling, and the
+// same writer -- only without an ack to send. Each source has one slot: a
+// new offer is refused while the previous one is still waiting (for this
+// thread, or for room in the writer's queue), and the driver keeps its
+// readings and offers them again. So a writer that falls behind pushes back
+// on the drivers exactly as it pushes back on the senders.
+//
 // All state lives on the thread that calls run(); the writer's commit
 // callbacks only hand completions over through a mutex-guarded list and an
 // eventfd.
@@ -23,10 +32,12 @@
 
 #include <atomic>
 #include <cstdint>
+#include <functional>
 #include <map>
 #include <memory>
 #include <mutex>
 #include <optional>
+#include <set>
 #include <string>
 #include <vector>
 #include <zmq.hpp>
@@ -45,6 +56,11 @@ struct IngestOptions {
   protocol::Limits limits;
   double time_backward_tolerance_s = 60.0;
   double time_future_tolerance_s = 86400.0;
+  // Sources that lphid's own drivers read: the ingest socket refuses
+  // batches for them (their sequence numbers belong to the driver).
+  std::set<std::string> driver_sources;
+  // Per-source overrides of time_future_tolerance_s, by source name.
+  std::map<std::string, double> source_future_tolerance_s;
 };
 
 class IngestServer {
@@ -62,8 +78,20 @@ class IngestServer {
   // what it committed last, and returns.
   void run(const std::atomic<bool>& stop);
 
+  // From any thread, never blocking: readings a driver made for `source`.
+  // False: not taken (the source's slot is busy, or the source is unknown);
+  // offer them again later.
+  bool offer_driver_readings(const std::string& source, protocol::Readings&& readings);
+  // From any thread: what the instrument behind `source` says it is. Logged
+  // and recorded in the store (instrument_identities).
+  void offer_identity(const std::string& source, std::string identity);
+  // Before run(): adds the result of `provider` as "drivers" to the status
+  // reply; it is called on run()'s thread and must be thread-safe.
+  void set_driver_status(std::function<nlohmann::json()> provider);
+
  private:
   struct Peer {
+    bool internal = false;  // one of lphid's drivers: nothing to reply to
     std::string identity;
     bool delimiter = false;  // a REQ peer: replies need an empty frame
     protocol::Encoding encoding = protocol::Encoding::json;
@@ -76,6 +104,9 @@ class IngestServer {
     std::optional<std::int64_t> durable_seq;    // highest seq committed
     std::optional<double> last_t;               // t of the newest committed reading
     double last_arrival_unix = 0.0;
+    double future_tolerance_s = 86400.0;
+    bool has_driver = false;  // fed by one of lphid's drivers only
+    std::string instrument_identity;
     std::uint64_t accepted = 0, duplicates = 0, rejected = 0;
     RateMeter rate;
   };
@@ -100,6 +131,10 @@ class IngestServer {
   void handle_request(const Peer& peer, std::string_view payload);
   void handle_batch(const Peer& peer, const nlohmann::json& message);
   void handle_hello(const Peer& peer, const nlohmann::json& message);
+  void accept_readings(const Peer& peer, SourceRuntime& source, std::optional<std::uint64_t> batch_id,
+                       const nlohmann::json& readings);
+  void drain_driver_inbox();
+  void submit_identities();
   bool submit(Held& held);
   void drain_completions();
   void finish(Completion& completion);
@@ -118,6 +153,14 @@ class IngestServer {
   IngestCounters counters_;
   std::optional<Held> held_;
   double started_unix_ = 0.0;
+
+  std::function<nlohmann::json()> driver_status_;
+  // Driver hand-overs: one slot per source (keys fixed at create()), and
+  // identities, guarded by inbox_mutex_; this thread takes them out.
+  std::mutex inbox_mutex_;
+  std::map<std::string, std::optional<protocol::Readings>> inbox_;
+  std::vector<std::pair<std::string, std::string>> inbox_identities_;
+  std::vector<std::pair<SourceRuntime*, std::string>> identities_to_store_;
 
   std::mutex completions_mutex_;
   std::vector<Completion> completions_;  // filled by the writer thread

@@ -25,6 +25,7 @@ enum class Reason {
   wrong_kind,         // the source is of another kind than the message or reading says
   empty_batch,        // a batch without readings
   batch_too_large,    // more readings than ingest.max_batch_readings
+  source_has_driver,  // lphid reads this source with its own driver; no other sender may
   // One reading is refused.
   bad_seq,                   // a sequence number that is negative or too large
   seq_not_increasing,        // sequence numbers within a batch must increase

@@ -47,6 +47,15 @@ Status StoreWriter::open(const std::string& path, const WriterOptions& options,
 Status StoreWriter::prepare_statements() {
   if (auto s = Statement::prepare(
           db_,
+          "INSERT INTO instrument_identities (source_id, identity, first_seen, last_seen)"
+          " VALUES (?1, ?2, ?3, ?3) ON CONFLICT (source_id, identity) DO UPDATE SET"
+          " last_seen = max(last_seen, excluded.last_seen)",
+          upsert_identity_);
+      !s) {
+    return s;
+  }
+  if (auto s = Statement::prepare(
+          db_,
           "INSERT INTO lockin_readings (source_id, seq, t, x_v, y_v, frequency_hz, range_v,"
           " time_constant_s, overload) VALUES (?,?,?,?,?,?,?,?,?) ON CONFLICT DO NOTHING",
           insert_lockin_);
@@ -239,6 +248,14 @@ Status StoreWriter::write(const WriteJob& job, WriteResult& result) {
   if (protocol::kind_of(job.readings) != source.kind) {
     return Status::failure("readings of the wrong kind for source id " +
                            std::to_string(job.source_id));
+  }
+  if (job.identity) {
+    upsert_identity_.bind(1, job.source_id);
+    upsert_identity_.bind(2, std::string_view(job.identity->text));
+    upsert_identity_.bind(3, job.identity->seen_at_unix);
+    const bool ok = upsert_identity_.step() == SQLITE_DONE;
+    upsert_identity_.reset();
+    if (!ok) return db_.error("storing an instrument identity");
   }
   return std::visit(
       [&](const auto& readings) -> Status {

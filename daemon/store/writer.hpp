@@ -56,10 +56,17 @@ struct WriteResult {
   std::chrono::steady_clock::duration latency{};  // from submit to durable
 };
 
+// What an instrument said it is (its answer to *IDN?), at a time.
+struct InstrumentIdentity {
+  std::string text;
+  double seen_at_unix = 0.0;
+};
+
 struct WriteJob {
   std::int64_t source_id = 0;
-  protocol::Readings readings;
+  protocol::Readings readings;  // may be empty (a job that only records an identity)
   std::function<void(const WriteResult&)> on_durable;  // runs on the writer thread
+  std::optional<InstrumentIdentity> identity{};  // recorded in instrument_identities
 };
 
 struct SourceState {
@@ -133,7 +140,7 @@ class StoreWriter {
   WriterOptions options_;
   std::string path_;
   Database db_;
-  Statement insert_lockin_, insert_thermometer_, insert_field_, insert_gap_;
+  Statement insert_lockin_, insert_thermometer_, insert_field_, insert_gap_, upsert_identity_;
   std::map<std::int64_t, Source> sources_;  // writer thread only, after start()
 
   mutable std::mutex mutex_;

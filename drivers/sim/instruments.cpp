@@ -2,6 +2,7 @@
 
 #include <array>
 #include <cmath>
+#include <cstdio>
 
 namespace lphi::sim {
 namespace {
@@ -93,9 +94,17 @@ std::optional<double> one_number(const scpi::Request& r, scpi::Error& error, boo
 
 }  // namespace
 
-SimInstrument::SimInstrument(Instrument kind, World& world, double speed)
-    : kind_(kind), world_(&world), speed_(speed) {
+SimInstrument::SimInstrument(Instrument kind, World& world, double speed, double clock_origin_s)
+    : kind_(kind), world_(&world), speed_(speed), clock_origin_s_(clock_origin_s) {
   reset();
+}
+
+std::string SimInstrument::clock_reading(double t_s) const {
+  if (clock_origin_s_ == 0.0) return format_number(t_s);
+  // An epoch time needs more than %.12g's digits to keep milliseconds.
+  char buf[48];
+  std::snprintf(buf, sizeof buf, "%.6f", clock_origin_s_ + t_s);
+  return buf;
 }
 
 void SimInstrument::reset() {
@@ -141,7 +150,7 @@ std::optional<std::string> SimInstrument::run(const scpi::Request& r, double t_s
   if (r.query && matches("*OPC", r) && no_args(r, error, failed)) return "1";
   if (r.query && matches("SYSTem:ERRor", r) && no_args(r, error, failed))
     return scpi::format_error(errors_.pop());
-  if (r.query && matches("SYSTem:TIME", r) && no_args(r, error, failed)) return format_number(t_s);
+  if (r.query && matches("SYSTem:TIME", r) && no_args(r, error, failed)) return clock_reading(t_s);
   if (r.query && matches("SYSTem:SPEED", r) && no_args(r, error, failed)) return format_number(speed_);
   if (failed) return std::nullopt;
   switch (kind_) {
@@ -157,7 +166,7 @@ std::optional<std::string> SimInstrument::run_lockin(const scpi::Request& r, dou
   using scpi::matches;
   if (r.query && r.nodes.size() == 2 && matches("MEASure:ALL", r) && no_args(r, error, failed)) {
     const LockinReading x = world_->lockin(t_s, time_constant_s_, range_v_);
-    return format_number(t_s) + "," + format_number(x.x_v) + "," + format_number(x.y_v) + "," +
+    return clock_reading(t_s) + "," + format_number(x.x_v) + "," + format_number(x.y_v) + "," +
            (x.overload ? "1" : "0");
   }
   if (r.query && matches("MEASure:X", r) && no_args(r, error, failed))
@@ -206,7 +215,7 @@ std::optional<std::string> SimInstrument::run_thermometer(const scpi::Request& r
   using scpi::matches;
   if (r.query && matches("MEASure:ALL", r) && no_args(r, error, failed)) {
     const ThermometerReading th = world_->thermometer(t_s);
-    return format_number(t_s) + "," + format_number(th.temperature_k) + "," +
+    return clock_reading(t_s) + "," + format_number(th.temperature_k) + "," +
            format_number(th.resistance_ohm);
   }
   if (r.query && matches("MEASure:TEMPerature", r) && no_args(r, error, failed))
@@ -226,7 +235,7 @@ std::optional<std::string> SimInstrument::run_magnet(const scpi::Request& r, dou
   Magnet& m = world_->magnet();
   const MagnetSettings& limits = world_->scenario().magnet;
   if (r.query && matches("MEASure:ALL", r) && no_args(r, error, failed)) {
-    return format_number(t_s) + "," + format_number(world_->field_reading_t(t_s)) + "," +
+    return clock_reading(t_s) + "," + format_number(world_->field_reading_t(t_s)) + "," +
            format_number(m.target_t(t_s)) + "," + format_number(m.rate_t_per_s(t_s)) + "," +
            (m.manual() ? "1" : "0");
   }

@@ -17,7 +17,11 @@ namespace lphi::sim {
 
 class SimInstrument {
  public:
-  SimInstrument(Instrument kind, World& world, double speed);
+  // `clock_origin_s` is added to every time the instrument reports (SYST:TIME?
+  // and the t field of MEAS:ALL?): 0 reports simulated seconds since the start,
+  // a Unix time makes the instrument's clock read epoch time. The model itself
+  // always runs on simulated seconds since the start.
+  SimInstrument(Instrument kind, World& world, double speed, double clock_origin_s = 0.0);
   SimInstrument(const SimInstrument&) = delete;
   SimInstrument& operator=(const SimInstrument&) = delete;
 
@@ -46,10 +50,12 @@ class SimInstrument {
   std::optional<std::string> run_thermometer(const scpi::Request& r, double t_s, scpi::Error& error, bool& failed);
   std::optional<std::string> run_magnet(const scpi::Request& r, double t_s, scpi::Error& error, bool& failed);
   void reset();
+  std::string clock_reading(double t_s) const;
 
   Instrument kind_;
   World* world_;
   double speed_;
+  double clock_origin_s_;
   scpi::ErrorQueue errors_;
   double range_v_ = 0.0;
   double time_constant_s_ = 0.0;

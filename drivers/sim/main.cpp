@@ -1,7 +1,9 @@
 // lphi-sim: simulated lock-in, thermometer and magnet supply on loopback TCP
 // ports, driven by a scenario file's sample model and cooldown programme.
 #include <CLI/CLI.hpp>
+#include <chrono>
 #include <cmath>
+#include <cstdlib>
 #include <cstdio>
 #include <string>
 
@@ -32,6 +34,7 @@ int main(int argc, char** argv) {
   lphi::sim::ServerOptions options;
   long long seed = -1;
   bool list_commands = false;
+  std::string epoch_start;
   app.add_option("scenario", scenario_path, "scenario file (TOML)");
   app.add_option("--speed", options.speed, "simulated seconds per wall-clock second (default 1)");
   app.add_option("--seed", seed, "noise seed (default: the scenario's)");
@@ -40,6 +43,9 @@ int main(int argc, char** argv) {
   app.add_option("--duration-s", options.duration_s,
                  "stop after this many simulated seconds (default: at the programme's end)");
   app.add_option("--bind", options.bind, "address to listen on (default 127.0.0.1)");
+  app.add_option("--epoch-start", epoch_start,
+                 "make the instruments' clock read Unix time: T (seconds since the epoch) at the "
+                 "start, or \"now\" for the wall-clock time at the start (default: 0, simulated seconds)");
   app.add_flag("--hold", options.hold, "keep serving the last state after the programme ends");
   app.add_flag("--list-commands", list_commands, "print the instruments' command tree and exit");
   CLI11_PARSE(app, argc, argv);
@@ -59,6 +65,19 @@ int main(int argc, char** argv) {
   if (!std::isfinite(options.duration_s) || options.duration_s < 0) {
     std::fprintf(stderr, "lphi-sim: --duration-s must be >= 0 (got %g)\n", options.duration_s);
     return 2;
+  }
+  if (epoch_start == "now") {
+    options.epoch_start_s = std::floor(
+        std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count());
+  } else if (!epoch_start.empty()) {
+    char* end = nullptr;
+    options.epoch_start_s = std::strtod(epoch_start.c_str(), &end);
+    if (end == epoch_start.c_str() || *end != '\0' || !std::isfinite(options.epoch_start_s) ||
+        options.epoch_start_s <= 0 || options.epoch_start_s > 1e10) {
+      std::fprintf(stderr, "lphi-sim: --epoch-start must be \"now\" or a Unix time in (0, 1e10] (got \"%s\")\n",
+                   epoch_start.c_str());
+      return 2;
+    }
   }
   auto loaded = lphi::sim::load_scenario_file(scenario_path);
   if (!loaded.scenario) {

@@ -31,13 +31,14 @@ struct SimServer::Impl {
   Impl(Scenario s, ServerOptions o)
       : options(std::move(o)),
         world(std::move(s)),
-        instruments{std::make_unique<SimInstrument>(Instrument::lockin, world, options.speed),
-                    std::make_unique<SimInstrument>(Instrument::thermometer, world, options.speed),
-                    std::make_unique<SimInstrument>(Instrument::magnet, world, options.speed)},
+        instruments{make(Instrument::lockin), make(Instrument::thermometer), make(Instrument::magnet)},
         acceptors{tcp::acceptor(io), tcp::acceptor(io), tcp::acceptor(io)},
         tick_timer(io),
         signals(io) {}
 
+  std::unique_ptr<SimInstrument> make(Instrument i) {
+    return std::make_unique<SimInstrument>(i, world, options.speed, options.epoch_start_s);
+  }
   double now_s() const {
     return options.speed * std::chrono::duration<double>(Clock::now() - start).count();
   }

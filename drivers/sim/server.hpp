@@ -3,6 +3,7 @@
 // applies the faults, writes the truth file and ends the run.
 //
 // Simulated time is t = speed * (wall-clock seconds since run() started).
+// The instruments report epoch_start_s + t as their clock (0 by default).
 // The run ends at --duration-s simulated seconds if given, otherwise at the
 // end of the programme, unless `hold` is set: then lphi-sim keeps serving the
 // programme's last state (zero field at the last plateau's temperature) until
@@ -23,6 +24,7 @@ namespace lphi::sim {
 
 struct ServerOptions {
   double speed = 1.0;               // simulated seconds per wall-clock second
+  double epoch_start_s = 0.0;       // added to reported times; 0: simulated seconds from 0
   std::string bind = "127.0.0.1";
   std::string truth_path;           // empty: no truth file
   std::string ports_file;           // empty: none; JSON {"lockin":p,"thermometer":p,"magnet":p}
