@@ -29,21 +29,7 @@ using lphi::testing::DephasingTruth;
 using lphi::testing::log_spaced;
 using lphi::testing::make_lphi_table;
 
-struct ZStats {
-  std::vector<double> z;
-  void add(double v) { z.push_back(v); }
-  double mean() const {
-    double s = 0;
-    for (double v : z) s += v;
-    return s / static_cast<double>(z.size());
-  }
-  double width() const {
-    const double m = mean();
-    double s = 0;
-    for (double v : z) s += (v - m) * (v - m);
-    return std::sqrt(s / static_cast<double>(z.size() - 1));
-  }
-};
+using lphi::testing::ZStats;
 
 // L_sat = 3 um with T_sat = 50 mK for p = 1: b = L_sat^-2 / T_sat.
 DephasingTruth saturating_truth() {

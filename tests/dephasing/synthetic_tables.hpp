@@ -87,4 +87,22 @@ inline std::vector<thermometry::ZeroFieldPoint> make_sigma_table(
   return out;
 }
 
+// Pull statistics over many seeds: the sample mean and standard deviation
+// of z = (fit - truth)/error, which should be near 0 and 1.
+struct ZStats {
+  std::vector<double> z;
+  void add(double v) { z.push_back(v); }
+  double mean() const {
+    double s = 0;
+    for (double v : z) s += v;
+    return s / static_cast<double>(z.size());
+  }
+  double width() const {
+    const double m = mean();
+    double s = 0;
+    for (double v : z) s += (v - m) * (v - m);
+    return std::sqrt(s / static_cast<double>(z.size() - 1));
+  }
+};
+
 }  // namespace lphi::testing

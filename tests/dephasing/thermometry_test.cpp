@@ -26,20 +26,7 @@ using lphi::thermometry::ZeroFieldPoint;
 constexpr double kSigma1 = 1e-3;  // S, a 1 kohm film
 constexpr double kNoise = 0.02;   // e^2/(pi h)
 
-struct ZStats {
-  std::vector<double> z;
-  double mean() const {
-    double s = 0;
-    for (double v : z) s += v;
-    return s / static_cast<double>(z.size());
-  }
-  double width() const {
-    const double m = mean();
-    double s = 0;
-    for (double v : z) s += (v - m) * (v - m);
-    return std::sqrt(s / static_cast<double>(z.size() - 1));
-  }
-};
+using lphi::testing::ZStats;
 
 TEST(Thermometry, UnitOfKappaPerDecade) {
   // PHYSICS.md [derived]: one unit of kappa is e^2/(pi h) ln 10 = 2.84e-5 S
@@ -86,7 +73,7 @@ TEST(Thermometry, PureLogarithmOverSeeds) {
     const auto r = analyse_zero_field(make_sigma_table(kSigma1, 1.0, 0.0, temps, kNoise, 300 + static_cast<unsigned>(s)));
     ASSERT_TRUE(r.sufficient);
     if (r.departs) ++departs;
-    else zk.z.push_back((r.slope_kappa - 1.0) / r.slope_kappa_err);
+    else zk.add((r.slope_kappa - 1.0) / r.slope_kappa_err);
   }
   EXPECT_LE(departs, 12);  // Binomial(300, 0.01) has mean 3
   EXPECT_LT(std::abs(zk.mean()), 0.25);
@@ -114,8 +101,8 @@ TEST(Thermometry, FloorZScoresOverSeeds) {
     const auto r = analyse_zero_field(make_sigma_table(kSigma1, 1.0, 0.060, temps, kNoise, 900 + static_cast<unsigned>(s)));
     if (!r.departs) continue;
     ++departs;
-    zf.z.push_back(std::log(*r.floor_temperature_k / 0.060) / (*r.floor_temperature_err_k / *r.floor_temperature_k));
-    zk.z.push_back((r.slope_kappa - 1.0) / r.slope_kappa_err);
+    zf.add(std::log(*r.floor_temperature_k / 0.060) / (*r.floor_temperature_err_k / *r.floor_temperature_k));
+    zk.add((r.slope_kappa - 1.0) / r.slope_kappa_err);
   }
   EXPECT_GE(departs, seeds - 3);
   for (const ZStats* z : {&zf, &zk}) {
