@@ -7,13 +7,13 @@
 #include <cmath>
 #include <limits>
 #include <numeric>
-#include <sstream>
 
 #include <Eigen/Dense>
 #include <boost/math/distributions/fisher_f.hpp>
 #include <ceres/ceres.h>
 
 #include "analysis/constants.hpp"
+#include "analysis/table_checks.hpp"
 
 namespace lphi::dephasing {
 
@@ -195,36 +195,23 @@ std::pair<double, double> log_log_line(const Data& d, const std::vector<std::siz
   return {(sy - p * sx) / sw, p};
 }
 
-std::string point_error(std::size_t i, const char* what) {
-  std::ostringstream os;
-  os << "point " << i << ": " << what;
-  return os.str();
-}
-
 std::string validate(std::span<const LphiPoint> points, const DephasingOptions& o) {
   if (o.dimension < 1 || o.dimension > 3) return "options.dimension must be 1, 2 or 3";
-  if (o.min_points < 4) return "options.min_points must be at least 4 (three parameters and one degree of freedom)";
-  if (!(o.min_span_ratio >= 1.0) || !std::isfinite(o.min_span_ratio))
-    return "options.min_span_ratio must be a finite number >= 1";
-  if (!(o.significance > 0.0 && o.significance < 1.0))
-    return "options.significance must lie strictly between 0 and 1";
+  if (auto e = detail::check_table_options(o.min_points, o.min_span_ratio, o.significance, o.max_iterations);
+      !e.empty())
+    return e;
   if (!(o.saturated_ratio > 0.0) || !std::isfinite(o.saturated_ratio))
     return "options.saturated_ratio must be a finite number > 0";
-  if (o.max_iterations < 1) return "options.max_iterations must be at least 1";
   std::size_t with_error = 0;
   for (std::size_t i = 0; i < points.size(); ++i) {
     const auto& pt = points[i];
-    if (!std::isfinite(pt.temperature_k)) return point_error(i, "temperature_k is not finite");
-    if (!(pt.temperature_k > 0.0)) return point_error(i, "temperature_k must be > 0");
-    if (!std::isfinite(pt.lphi_m)) return point_error(i, "lphi_m is not finite");
-    if (!(pt.lphi_m > 0.0)) return point_error(i, "lphi_m must be > 0");
-    if (!std::isfinite(pt.lphi_err_m)) return point_error(i, "lphi_err_m is not finite");
-    if (pt.lphi_err_m < 0.0) return point_error(i, "lphi_err_m must be >= 0 (0: unknown)");
+    if (auto e = detail::check_table_point(i, pt.temperature_k, "lphi_m", pt.lphi_m, true, "lphi_err_m",
+                                           pt.lphi_err_m);
+        !e.empty())
+      return e;
     if (pt.lphi_err_m > 0.0) ++with_error;
   }
-  if (with_error != 0 && with_error != points.size())
-    return "lphi_err_m is 0 (unknown) at some points but given at others; give all or none";
-  return {};
+  return detail::check_errors_all_or_none(with_error, points.size(), "lphi_err_m");
 }
 
 double aic(double chi2, std::size_t n, std::size_t k, bool from_scatter) {
@@ -343,7 +330,7 @@ DephasingResult fit_dephasing(std::span<const LphiPoint> points, const Dephasing
     // Lengths so extreme that L^-2 or its error leave the double range.
     if (!(std::isfinite(y) && y > 0.0 && std::isfinite(sigma_y) && sigma_y > 0.0 &&
           std::isfinite(1.0 / (sigma_y * sigma_y)))) {
-      r.error = point_error(i, "lphi_m or lphi_err_m out of the representable range");
+      r.error = detail::point_error(i, "lphi_m or lphi_err_m out of the representable range");
       return r;
     }
     d.x.push_back(std::log(pt.temperature_k) - d.ln_t_ref);

@@ -5,13 +5,13 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
-#include <sstream>
 #include <vector>
 
 #include <Eigen/Dense>
 #include <ceres/ceres.h>
 
 #include "analysis/constants.hpp"
+#include "analysis/table_checks.hpp"
 #include "analysis/dephasing.hpp"
 
 namespace lphi::thermometry {
@@ -95,32 +95,20 @@ std::vector<double> floor_logs(const Data& d, double tf) {
   return l;
 }
 
-std::string point_error(std::size_t i, const char* what) {
-  std::ostringstream os;
-  os << "point " << i << ": " << what;
-  return os.str();
-}
-
 std::string validate(std::span<const ZeroFieldPoint> points, const ThermometryOptions& o) {
-  if (o.min_points < 4) return "options.min_points must be at least 4 (three parameters and one degree of freedom)";
-  if (!(o.min_span_ratio >= 1.0) || !std::isfinite(o.min_span_ratio))
-    return "options.min_span_ratio must be a finite number >= 1";
-  if (!(o.significance > 0.0 && o.significance < 1.0))
-    return "options.significance must lie strictly between 0 and 1";
-  if (o.max_iterations < 1) return "options.max_iterations must be at least 1";
+  if (auto e = detail::check_table_options(o.min_points, o.min_span_ratio, o.significance, o.max_iterations);
+      !e.empty())
+    return e;
   std::size_t with_error = 0;
   for (std::size_t i = 0; i < points.size(); ++i) {
     const auto& pt = points[i];
-    if (!std::isfinite(pt.temperature_k)) return point_error(i, "temperature_k is not finite");
-    if (!(pt.temperature_k > 0.0)) return point_error(i, "temperature_k must be > 0");
-    if (!std::isfinite(pt.sigma_s)) return point_error(i, "sigma_s is not finite");
-    if (!std::isfinite(pt.sigma_err_s)) return point_error(i, "sigma_err_s is not finite");
-    if (pt.sigma_err_s < 0.0) return point_error(i, "sigma_err_s must be >= 0 (0: unknown)");
+    if (auto e = detail::check_table_point(i, pt.temperature_k, "sigma_s", pt.sigma_s, false, "sigma_err_s",
+                                           pt.sigma_err_s);
+        !e.empty())
+      return e;
     if (pt.sigma_err_s > 0.0) ++with_error;
   }
-  if (with_error != 0 && with_error != points.size())
-    return "sigma_err_s is 0 (unknown) at some points but given at others; give all or none";
-  return {};
+  return detail::check_errors_all_or_none(with_error, points.size(), "sigma_err_s");
 }
 
 }  // namespace
@@ -149,7 +137,7 @@ ThermometryResult analyse_zero_field(std::span<const ZeroFieldPoint> points,
     const auto& pt = points[i];
     const double err = r.errors_from_scatter ? 1.0 : pt.sigma_err_s / unit;
     if (!(err > 0.0 && std::isfinite(1.0 / (err * err)))) {
-      r.error = point_error(i, "sigma_err_s out of the representable range");
+      r.error = detail::point_error(i, "sigma_err_s out of the representable range");
       r.sufficient = false;
       return r;
     }

@@ -16,6 +16,7 @@
 #include <thread>
 #include <vector>
 
+#include "tests/hookup/store_export.hpp"
 #include "tests/ingest/daemon_process.hpp"
 #include "tests/sim/sim_process.hpp"
 
@@ -28,13 +29,6 @@ using Clock = std::chrono::steady_clock;
 
 double unix_now() {
   return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
-}
-
-std::string slurp(const std::string& path) {
-  std::ifstream in(path);
-  std::ostringstream s;
-  s << in.rdbuf();
-  return s.str();
 }
 
 // One [[source]] with a scpi-tcp driver asking MEAS:ALL? (reply layout from
@@ -84,19 +78,6 @@ std::optional<json> wait_for_status(const DaemonProcess& d, std::chrono::seconds
     std::this_thread::sleep_for(50ms);
   }
   return std::nullopt;
-}
-
-std::vector<json> export_readings(const std::string& dir, const std::string& source) {
-  const auto r = run_program({LPHI_PATH, "export", "readings", "--data-dir", dir, "--source", source,
-                              "--format", "jsonl"},
-                             "", 30s);
-  EXPECT_EQ(r.exit_code, 0) << r.err;
-  std::vector<json> out;
-  std::istringstream lines(r.out);
-  for (std::string line; std::getline(lines, line);) {
-    if (!line.empty()) out.push_back(json::parse(line));
-  }
-  return out;
 }
 
 struct Rig {

@@ -22,6 +22,7 @@
 #include <thread>
 #include <vector>
 
+#include "tests/hookup/store_export.hpp"
 #include "tests/ingest/daemon_process.hpp"
 
 namespace lphi::testing {
@@ -111,26 +112,6 @@ bool send_all(const Fd& s, const std::string& text) {
     done += static_cast<std::size_t>(n);
   }
   return true;
-}
-
-std::string slurp(const std::string& path) {
-  std::ifstream in(path);
-  std::ostringstream s;
-  s << in.rdbuf();
-  return s.str();
-}
-
-std::vector<json> export_readings(const std::string& dir, const std::string& source) {
-  const auto r = run_program({LPHI_PATH, "export", "readings", "--data-dir", dir, "--source", source,
-                              "--format", "jsonl"},
-                             "", 30s);
-  EXPECT_EQ(r.exit_code, 0) << r.err;
-  std::vector<json> out;
-  std::istringstream lines(r.out);
-  for (std::string line; std::getline(lines, line);) {
-    if (!line.empty()) out.push_back(json::parse(line));
-  }
-  return out;
 }
 
 const json* driver_of(const json& status, const std::string& source) {
