@@ -1,5 +1,6 @@
 #include "analysis/special_functions.hpp"
 
+#include <algorithm>
 #include <array>
 #include <cmath>
 #include <cstddef>
@@ -66,6 +67,7 @@ BracketAndSlope bracket_asymptotic(double x) {
   }
   return {value * w, slope * w};
 }
+
 
 // ---------------------------------------------------------------------------
 // Kawabata's f3.
@@ -154,6 +156,30 @@ BracketAndSlope wl_bracket_and_log_slope(double x) {
   if (x >= bracket_crossover) return bracket_asymptotic(x);
   return {boost::math::digamma(0.5 + x, DoublePolicy()) - std::log(x),
           x * boost::math::trigamma(0.5 + x, DoublePolicy()) - 1.0};
+}
+
+// The two-argument form, inlined into the sweep loop below: the one-argument
+// form with ln x given.
+inline BracketAndSlope bracket_with_log(double x, double ln_x) {
+  if (!(x > 0.0)) return {nan, nan};
+  if (x >= bracket_crossover) return std::isinf(x) ? BracketAndSlope{} : bracket_asymptotic(x);
+  return {boost::math::digamma(0.5 + x, DoublePolicy()) - ln_x,
+          x * boost::math::trigamma(0.5 + x, DoublePolicy()) - 1.0};
+}
+
+BracketAndSlope wl_bracket_and_log_slope(double x, double ln_x) { return bracket_with_log(x, ln_x); }
+
+void wl_bracket_and_log_slope(double scale, double ln_scale, std::span<const double> factor,
+                              std::span<const double> ln_factor, std::span<BracketAndSlope> out) {
+  const std::size_t n = std::min({factor.size(), ln_factor.size(), out.size()});
+  for (std::size_t i = 0; i < n; ++i)
+    out[i] = bracket_with_log(scale * factor[i], ln_scale + ln_factor[i]);
+}
+
+double wl_bracket(double x, double ln_x) {
+  if (!(x > 0.0)) return nan;
+  if (x >= bracket_crossover) return std::isinf(x) ? 0.0 : bracket_asymptotic(x).value;
+  return boost::math::digamma(0.5 + x, DoublePolicy()) - ln_x;
 }
 
 double wl_bracket(double x) {

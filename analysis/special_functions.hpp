@@ -27,6 +27,8 @@
 // nothing here throws or writes errno. All functions are pure and thread-safe.
 #pragma once
 
+#include <span>
+
 namespace lphi::special {
 
 double digamma(double x);   // psi(x), x > 0
@@ -46,6 +48,21 @@ struct BracketAndSlope {
   double log_slope = 0.0;   // x db/dx (0 at x = +infinity)
 };
 BracketAndSlope wl_bracket_and_log_slope(double x);
+// The same with ln x supplied by the caller, for fits that evaluate the
+// bracket at x_i = B_phi/|B_i| over a whole sweep: ln x_i = ln B_phi - ln|B_i|
+// from logarithms taken once per sweep and once per parameter set, so no
+// logarithm of x is taken here. ln_x must be ln x to within a few ulp of its
+// magnitude (the error it carries is amplified like that of the direct
+// difference, see above); it is not checked against x. Same domain and
+// accuracy as the one-argument form.
+BracketAndSlope wl_bracket_and_log_slope(double x, double ln_x);
+double wl_bracket(double x, double ln_x);  // its value alone
+// The same over a whole sweep: out[i] = wl_bracket_and_log_slope(x_i, ln x_i)
+// with x_i = scale * factor[i], ln x_i = ln_scale + ln_factor[i] (for the HLN
+// model scale = B_phi, factor = 1/|B|). factor = +infinity (a zero field)
+// gives {0, 0}. Entries past the shortest of the three spans are not touched.
+void wl_bracket_and_log_slope(double scale, double ln_scale, std::span<const double> factor,
+                              std::span<const double> ln_factor, std::span<BracketAndSlope> out);
 
 // Hurwitz zeta function zeta(1/2, a) = sum_{n>=0} (n + a)^(-1/2) continued
 // analytically, for a > 0 (Euler-Maclaurin summation, DLMF 25.11). It changes

@@ -8,10 +8,13 @@
 #include <cmath>
 #include <cstdio>
 #include <limits>
+#include <memory>
+#include <span>
 #include <string>
 #include <vector>
 
 #include "analysis/constants.hpp"
+#include "analysis/special_functions.hpp"
 
 namespace lphi::fit {
 namespace {
@@ -113,13 +116,34 @@ Layout make_layout(const Shape& shape, bool alpha_free, double alpha_held, bool 
 }
 
 // The points of one pass. y is Delta sigma in units of e^2/(pi h); weight is
-// 1/error in the same unit, or 1 when the errors are unknown.
+// 1/error in the same unit, or 1 when the errors are unknown. The HLN model
+// needs x = B_phi/|B| and ln x at every point of every model pass; 1/|B| and
+// -ln|B| are taken once per sweep (both +infinity at B = 0, where x is
+// infinite and the bracket 0; both 0 for the other models, which do not use
+// them).
 struct Data {
   std::vector<double> field_t;
   std::vector<double> y;
   std::vector<double> weight;
+  std::vector<double> inverse_field;
+  std::vector<double> ln_inverse_field;
+  bool errors_known = false;  // weights from given point errors
   std::size_t size() const { return field_t.size(); }
+  void resize(std::size_t n) {
+    for (std::vector<double>* v : {&field_t, &y, &weight, &inverse_field, &ln_inverse_field})
+      v->resize(n);
+  }
+  void set(std::size_t i, const Data& from, std::size_t j) {
+    field_t[i] = from.field_t[j];
+    y[i] = from.y[j];
+    weight[i] = from.weight[j];
+    inverse_field[i] = from.inverse_field[j];
+    ln_inverse_field[i] = from.ln_inverse_field[j];
+  }
 };
+
+// hbar/(4e), so that ln B_phi = ln(hbar/(4e)) - 2 ln L_phi.
+const double kLnHbarOver4e = std::log(kHbar / (4.0 * kE));
 
 // Every parameter in natural form, whether fitted or not.
 struct Values {
@@ -141,7 +165,43 @@ Values unpack(const Layout& l, const double* theta) {
 // gradients. Value and Jacobian come out of one pass because the model's
 // gradient functions return both for little more than the value alone.
 void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* theta,
-              double* residuals, double* jacobian) {
+              double* residuals, double* jacobian, std::span<special::BracketAndSlope> scratch);
+
+// evaluate() for hln2d, the model most sweeps are fitted with, in the form
+// of mc::hln2d_grad (alpha b(x), -2 alpha x b'(x), b(x)) but with x = B_phi/|B|
+// and ln x from the per-sweep 1/|B| and ln|B|: one multiplication and one
+// subtraction per point instead of a division and a logarithm.
+void evaluate_hln(const Layout& l, const Data& d, const double* theta, double* residuals,
+                  double* jacobian, std::span<special::BracketAndSlope> brackets) {
+  const Values v = unpack(l, theta);
+  const double ln_b_phi = kLnHbarOver4e - 2.0 * theta[l.ln_lphi];
+  const std::size_t n = d.size();
+  special::wl_bracket_and_log_slope(std::exp(ln_b_phi), ln_b_phi, d.inverse_field,
+                                    d.ln_inverse_field, brackets.first(n));
+  auto column = [&](int k) { return jacobian + static_cast<std::size_t>(k) * n; };
+  double* const j_lphi = column(l.ln_lphi);
+  double* const j_alpha = l.alpha >= 0 ? column(l.alpha) : nullptr;
+  double* const j_offset = l.offset >= 0 ? column(l.offset) : nullptr;
+  double* const j_background = l.background >= 0 ? column(l.background) : nullptr;
+  const double* const field = d.field_t.data();
+  for (std::size_t i = 0; i < n; ++i) {
+    const special::BracketAndSlope s = brackets[i];
+    const double w = d.weight[i];
+    const double b2 = field[i] * field[i];
+    residuals[i] = w * (v.alpha * s.value + v.offset + v.background * b2 - d.y[i]);
+    j_lphi[i] = -2.0 * w * v.alpha * s.log_slope;
+    if (j_alpha != nullptr) j_alpha[i] = w * s.value;
+    if (j_offset != nullptr) j_offset[i] = w;
+    if (j_background != nullptr) j_background[i] = w * b2;
+  }
+}
+
+void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* theta,
+              double* residuals, double* jacobian, std::span<special::BracketAndSlope> scratch) {
+  if (shape.model == mc::Model::hln2d) {
+    evaluate_hln(l, d, theta, residuals, jacobian, scratch);
+    return;
+  }
   const Values v = unpack(l, theta);
   const std::size_t n = d.size();
   auto column = [&](int k) { return jacobian + static_cast<std::size_t>(k) * n; };
@@ -168,24 +228,28 @@ void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* 
 // for a trial point's residuals, then, once it accepts the step, for its
 // Jacobian too; each model pass computes both, so every point costs one pass,
 // and the covariance at the solution reuses the pass at the solution. The
-// buffers are sized once per pass; nothing is allocated inside the LM loop.
+// buffers are sized once per pass (and not cleared: every entry is written
+// before it is read); nothing is allocated inside the LM loop.
 class Evaluations {
  public:
   Evaluations(const Shape& shape, const Layout& layout, const Data& data)
-      : shape_(shape), layout_(layout), data_(data) {
-    const std::size_t p = static_cast<std::size_t>(layout.size);
+      : shape_(shape), layout_(layout), data_(data),
+        p_(static_cast<std::size_t>(layout.size)), n_(data.size()) {
     for (Slot& s : slots_) {
-      s.theta.assign(p, 0.0);
-      s.residuals.assign(data.size(), 0.0);
-      s.jacobian.assign(data.size() * p, 0.0);
+      s.theta = std::make_unique_for_overwrite<double[]>(p_);
+      s.residuals = std::make_unique_for_overwrite<double[]>(n_);
+      s.jacobian = std::make_unique_for_overwrite<double[]>(n_ * p_);
     }
+    if (shape.model == mc::Model::hln2d)
+      scratch_ = std::make_unique_for_overwrite<special::BracketAndSlope[]>(n_);
   }
   struct Slot {
-    std::vector<double> theta;
-    std::vector<double> residuals;  // n
-    std::vector<double> jacobian;   // n x p, column-major
+    std::unique_ptr<double[]> theta;      // p
+    std::unique_ptr<double[]> residuals;  // n
+    std::unique_ptr<double[]> jacobian;   // n x p, column-major
     bool valid = false;
   };
+  std::size_t size() const { return n_; }
   // The evaluation at theta; made now unless one of the two slots holds it.
   // A request for the Jacobian marks theta as the iterate, which the next
   // new point must not overwrite.
@@ -195,8 +259,9 @@ class Evaluations {
     if (k == slots_.size()) {
       k = 1 - iterate_;
       Slot& s = slots_[k];
-      evaluate(shape_, layout_, data_, theta, s.residuals.data(), s.jacobian.data());
-      std::copy(theta, theta + s.theta.size(), s.theta.begin());
+      evaluate(shape_, layout_, data_, theta, s.residuals.get(), s.jacobian.get(),
+               {scratch_.get(), scratch_ ? n_ : 0});
+      std::copy(theta, theta + p_, s.theta.get());
       s.valid = true;
     }
     if (iterate) iterate_ = k;
@@ -204,43 +269,119 @@ class Evaluations {
   }
 
  private:
-  static bool holds(const Slot& s, const double* theta) {
-    return s.valid && std::equal(s.theta.begin(), s.theta.end(), theta);
+  bool holds(const Slot& s, const double* theta) const {
+    return s.valid && std::equal(s.theta.get(), s.theta.get() + p_, theta);
   }
   const Shape& shape_;
   const Layout& layout_;
   const Data& data_;
+  std::size_t p_, n_;
   std::array<Slot, 2> slots_;
+  std::unique_ptr<special::BracketAndSlope[]> scratch_;  // hln2d only
   std::size_t iterate_ = 0;
 };
 
-double sum_of_squares(const std::vector<double>& r) {
+double sum_of_squares(const double* r, std::size_t n) {
   double sum = 0.0;
-  for (double x : r) sum += x * x;
+  for (std::size_t i = 0; i < n; ++i) sum += r[i] * r[i];
   return sum;
 }
+
+// The Gauss-Newton step left at an iterate, in standard errors: with J^T J
+// and g = J^T r at the iterate, the step is delta = (J^T J)^-1 g and the
+// chi-square it would remove is g^T delta (for a linear model exactly,
+// near the minimum to second order). The covariance is (J^T J)^-1, times
+// chi2/(n - p) when the point errors are unknown (see the header), so the
+// step's length in standard errors is sqrt(g^T delta) or
+// sqrt(g^T delta (n - p)/chi2). Returns +infinity when J^T J is singular.
+template <int P>
+double gauss_newton_step_in_standard_errors(const double* residuals, const double* jacobian,
+                                            std::size_t n, bool errors_known) {
+  Eigen::Matrix<double, P, P> jtj = Eigen::Matrix<double, P, P>::Zero();
+  Eigen::Matrix<double, P, 1> g = Eigen::Matrix<double, P, 1>::Zero();
+  double chi2 = 0.0;
+  std::array<const double*, P> column;
+  for (std::size_t a = 0; a < P; ++a) column[a] = jacobian + a * n;
+  std::array<double, P> g_sum{};
+  std::array<double, P * (P + 1) / 2> jtj_sum{};  // lower triangle, row by row
+  for (std::size_t i = 0; i < n; ++i) {
+    const double r = residuals[i];
+    chi2 += r * r;
+    std::size_t t = 0;
+    for (std::size_t a = 0; a < P; ++a) {
+      const double ja = column[a][i];
+      g_sum[a] += ja * r;
+      for (std::size_t b = 0; b <= a; ++b) jtj_sum[t++] += ja * column[b][i];
+    }
+  }
+  std::size_t t = 0;
+  for (int a = 0; a < P; ++a) {
+    g[a] = g_sum[static_cast<std::size_t>(a)];
+    for (int b = 0; b <= a; ++b) jtj(a, b) = jtj(b, a) = jtj_sum[t++];
+  }
+  const double dof = static_cast<double>(n) - P;
+  if (!(dof > 0.0)) return kInf;
+  // Jacobi scaling keeps the factorization well conditioned; the quadratic
+  // form is invariant under it.
+  const Eigen::Matrix<double, P, 1> scale = jtj.diagonal().cwiseSqrt().cwiseInverse();
+  if (!scale.allFinite()) return kInf;
+  const Eigen::Matrix<double, P, P> normalized = scale.asDiagonal() * jtj * scale.asDiagonal();
+  const Eigen::LLT<Eigen::Matrix<double, P, P>> llt(normalized);
+  if (llt.info() != Eigen::Success) return kInf;
+  const Eigen::Matrix<double, P, 1> scaled_g = scale.cwiseProduct(g);
+  const double removed = scaled_g.dot(llt.solve(scaled_g));
+  const double variance_scale = errors_known ? 1.0 : chi2 / dof;
+  const double steps2 = removed / variance_scale;
+  return std::isfinite(steps2) && steps2 >= 0.0 ? std::sqrt(steps2) : kInf;
+}
+
+// LM stops at an iterate whose Gauss-Newton step left is below this many
+// standard errors: the answer is then that close to the minimum, and the
+// trial step that would confirm it (one more model pass) is not taken. The
+// GSL cross-check asks for agreement to 0.01 standard errors.
+constexpr double kGaussNewtonStepTolerance = 1e-3;
 
 // The sweep as a ceres::TinySolver function with P parameters (fixed at
 // compile time, so the normal equations are small fixed-size products) and
 // one residual per point.
+//
+// TinySolver evaluates the Jacobian at each new iterate and then compares
+// the gradient with options.gradient_tolerance. The function sees that
+// Jacobian first: when the Gauss-Newton step left there is below
+// kGaussNewtonStepTolerance, it raises the solver's gradient tolerance to
+// infinity so that the solver stops at that iterate (GRADIENT_TOO_SMALL),
+// and records that it did so.
 template <int P>
 class SweepResiduals {
  public:
   using Scalar = double;
   enum { NUM_RESIDUALS = Eigen::Dynamic, NUM_PARAMETERS = P };
 
-  SweepResiduals(std::size_t n, Evaluations& evaluations) : n_(n), evaluations_(evaluations) {}
-  int NumResiduals() const { return static_cast<int>(n_); }
+  SweepResiduals(Evaluations& evaluations, bool errors_known, double* solver_gradient_tolerance)
+      : evaluations_(evaluations), errors_known_(errors_known),
+        solver_gradient_tolerance_(solver_gradient_tolerance) {}
+  int NumResiduals() const { return static_cast<int>(evaluations_.size()); }
   bool operator()(const double* theta, double* residuals, double* jacobian) const {
+    const std::size_t n = evaluations_.size();
     const Evaluations::Slot& e = evaluations_.at(theta, jacobian != nullptr);
-    std::copy(e.residuals.begin(), e.residuals.end(), residuals);
-    if (jacobian != nullptr) std::copy(e.jacobian.begin(), e.jacobian.end(), jacobian);
+    std::copy(e.residuals.get(), e.residuals.get() + n, residuals);
+    if (jacobian != nullptr) {
+      std::copy(e.jacobian.get(), e.jacobian.get() + n * P, jacobian);
+      if (gauss_newton_step_in_standard_errors<P>(e.residuals.get(), e.jacobian.get(), n,
+                                                  errors_known_) < kGaussNewtonStepTolerance) {
+        *solver_gradient_tolerance_ = kInf;
+        stopped_ = true;
+      }
+    }
     return true;
   }
+  bool stopped_at_gauss_newton_tolerance() const { return stopped_; }
 
  private:
-  std::size_t n_;
   Evaluations& evaluations_;
+  bool errors_known_;
+  double* solver_gradient_tolerance_;
+  mutable bool stopped_ = false;
 };
 
 // Linear least squares for the parameters that enter linearly (alpha when
@@ -254,12 +395,24 @@ LinearSolution solve_linear(const Shape& shape, const Layout& l, const Data& d,
                             const std::vector<std::size_t>& index, double lphi_m, double lso_m) {
   const bool alpha_free = l.alpha >= 0;
   const int n_lin = (alpha_free ? 1 : 0) + (l.offset >= 0 ? 1 : 0) + (l.background >= 0 ? 1 : 0);
+  const double alpha = alpha_free ? 1.0 : l.alpha_held;
   std::vector<double> basis(index.size());
-  for (std::size_t k = 0; k < index.size(); ++k)
-    basis[k] = shape.value(d.field_t[index[k]], lphi_m, lso_m, alpha_free ? 1.0 : l.alpha_held);
+  if (shape.model == mc::Model::hln2d) {
+    // As evaluate_hln: x = B_phi/|B| and ln x from the per-sweep terms.
+    const double ln_b_phi = std::log(mc::characteristic_field_t(lphi_m));
+    const double b_phi = std::exp(ln_b_phi);
+    for (std::size_t k = 0; k < index.size(); ++k) {
+      const std::size_t i = index[k];
+      basis[k] = alpha * special::wl_bracket(b_phi * d.inverse_field[i],
+                                             ln_b_phi + d.ln_inverse_field[i]);
+    }
+  } else {
+    for (std::size_t k = 0; k < index.size(); ++k)
+      basis[k] = shape.value(d.field_t[index[k]], lphi_m, lso_m, alpha);
+  }
 
-  Eigen::Matrix3d normal = Eigen::Matrix3d::Zero();
-  Eigen::Vector3d rhs = Eigen::Vector3d::Zero();
+  // The design row of point k (unused entries stay 0, so the fixed-size sums
+  // below leave them out) and the target it is fitted to.
   auto columns = [&](std::size_t k, double* x) {
     int c = 0;
     const double b = d.field_t[index[k]];
@@ -268,14 +421,14 @@ LinearSolution solve_linear(const Shape& shape, const Layout& l, const Data& d,
     if (l.background >= 0) x[c++] = b * b;
   };
   auto target = [&](std::size_t k) { return d.y[index[k]] - (alpha_free ? 0.0 : basis[k]); };
+  Eigen::Matrix3d normal = Eigen::Matrix3d::Zero();
+  Eigen::Vector3d rhs = Eigen::Vector3d::Zero();
   for (std::size_t k = 0; k < index.size(); ++k) {
-    double x[3] = {0, 0, 0};
-    columns(k, x);
+    Eigen::Vector3d x = Eigen::Vector3d::Zero();
+    columns(k, x.data());
     const double w2 = d.weight[index[k]] * d.weight[index[k]];
-    for (int r = 0; r < n_lin; ++r) {
-      rhs[r] += w2 * x[r] * target(k);
-      for (int c = 0; c < n_lin; ++c) normal(r, c) += w2 * x[r] * x[c];
-    }
+    rhs += (w2 * target(k)) * x;
+    normal += (w2 * x) * x.transpose();
   }
   Eigen::Vector3d coef = Eigen::Vector3d::Zero();
   if (n_lin > 0) {
@@ -291,11 +444,9 @@ LinearSolution solve_linear(const Shape& shape, const Layout& l, const Data& d,
   if (l.background >= 0) s.background = coef[c++];
   s.ssr = 0.0;
   for (std::size_t k = 0; k < index.size(); ++k) {
-    double x[3] = {0, 0, 0};
-    columns(k, x);
-    double fit = 0.0;
-    for (int r = 0; r < n_lin; ++r) fit += coef[r] * x[r];
-    const double e = d.weight[index[k]] * (target(k) - fit);
+    Eigen::Vector3d x = Eigen::Vector3d::Zero();
+    columns(k, x.data());
+    const double e = d.weight[index[k]] * (target(k) - coef.dot(x));
     s.ssr += e * e;
   }
   if (!std::isfinite(s.ssr)) s.ssr = kInf;
@@ -417,8 +568,9 @@ struct PassResult {
   std::string termination;
 };
 
-// Convergence, as in Ceres' defaults for a small problem: the chi-square
-// changes by less than kFunctionTolerance of itself, or the step is below
+// Convergence, besides the Gauss-Newton step test above (which normally
+// ends the solve first), as in Ceres' defaults for a small problem: the
+// chi-square changes by less than kFunctionTolerance of itself, or the step is below
 // kParameterTolerance relative, or the (Jacobi-scaled) gradient's largest
 // entry is below kGradientTolerance. Residuals are of order one (see the
 // header), so the cost is ~n/2 in units of the noise; a chi-square change
@@ -434,22 +586,23 @@ constexpr double kGradientTolerance = 1e-10;
 constexpr double kToleranceRefresh = 0.5;
 
 template <int P>
-PassResult tiny_solve(std::size_t n, Evaluations& evaluations, int max_iterations,
+PassResult tiny_solve(Evaluations& evaluations, bool errors_known, int max_iterations,
                       std::vector<double>& theta, std::vector<double>& residuals,
                       std::vector<double>& jacobian) {
   using Solver = ceres::TinySolver<SweepResiduals<P>>;
-  const SweepResiduals<P> function(n, evaluations);
   Solver solver;
-  solver.options.gradient_tolerance = kGradientTolerance;
+  const SweepResiduals<P> function(evaluations, errors_known, &solver.options.gradient_tolerance);
   solver.options.parameter_tolerance = kParameterTolerance;
   typename Solver::Parameters x = Eigen::Map<const Eigen::Matrix<double, P, 1>>(theta.data());
 
   PassResult r;
-  double chi2_scale = sum_of_squares(evaluations.at(x.data(), true).residuals);
+  const std::size_t n = evaluations.size();
+  double chi2_scale = sum_of_squares(evaluations.at(x.data(), true).residuals.get(), n);
   int left = max_iterations;
   typename Solver::Status status = Solver::HIT_MAX_ITERATIONS;
   double chi2 = chi2_scale;
   while (left > 0) {
+    solver.options.gradient_tolerance = kGradientTolerance;
     solver.options.function_tolerance = kFunctionTolerance * chi2_scale;
     // TinySolver tries at most max_num_iterations - 1 steps.
     solver.options.max_num_iterations = left + 1;
@@ -466,9 +619,9 @@ PassResult tiny_solve(std::size_t n, Evaluations& evaluations, int max_iteration
   }
   std::copy(x.data(), x.data() + P, theta.begin());
   const Evaluations::Slot& at_solution = evaluations.at(theta.data(), true);
-  residuals = at_solution.residuals;
-  jacobian = at_solution.jacobian;
-  chi2 = sum_of_squares(residuals);
+  residuals.assign(at_solution.residuals.get(), at_solution.residuals.get() + n);
+  jacobian.assign(at_solution.jacobian.get(), at_solution.jacobian.get() + n * P);
+  chi2 = sum_of_squares(residuals.data(), n);
 
   r.converged = std::isfinite(chi2);
   char message[160];
@@ -483,9 +636,13 @@ PassResult tiny_solve(std::size_t n, Evaluations& evaluations, int max_iteration
                     kParameterTolerance);
       break;
     case Solver::GRADIENT_TOO_SMALL:
-      std::snprintf(message, sizeof message,
-                    "gradient tolerance reached: max |scaled gradient| < %.0e",
-                    kGradientTolerance);
+      if (function.stopped_at_gauss_newton_tolerance())
+        std::snprintf(message, sizeof message,
+                      "Gauss-Newton step left below %.0e standard errors", kGaussNewtonStepTolerance);
+      else
+        std::snprintf(message, sizeof message,
+                      "gradient tolerance reached: max |scaled gradient| < %.0e",
+                      kGradientTolerance);
       break;
     case Solver::COST_TOO_SMALL:
       std::snprintf(message, sizeof message, "chi2 %.3g is zero to double precision", chi2);
@@ -515,12 +672,12 @@ PassResult levenberg_marquardt(const Shape& shape, const Layout& l, const Data& 
       theta[static_cast<std::size_t>(k)] =
           std::clamp(theta[static_cast<std::size_t>(k)], bounds.ln_lower, bounds.ln_upper);
   Evaluations evaluations(shape, l, d);
-  const std::size_t n = d.size();
+  const bool e = d.errors_known;
   switch (l.size) {
-    case 1: return tiny_solve<1>(n, evaluations, max_iterations, theta, residuals, jacobian);
-    case 2: return tiny_solve<2>(n, evaluations, max_iterations, theta, residuals, jacobian);
-    case 3: return tiny_solve<3>(n, evaluations, max_iterations, theta, residuals, jacobian);
-    case 4: return tiny_solve<4>(n, evaluations, max_iterations, theta, residuals, jacobian);
+    case 1: return tiny_solve<1>(evaluations, e, max_iterations, theta, residuals, jacobian);
+    case 2: return tiny_solve<2>(evaluations, e, max_iterations, theta, residuals, jacobian);
+    case 3: return tiny_solve<3>(evaluations, e, max_iterations, theta, residuals, jacobian);
+    case 4: return tiny_solve<4>(evaluations, e, max_iterations, theta, residuals, jacobian);
     default: break;  // make_layout never gives more than 4 parameters
   }
   PassResult r;
@@ -538,14 +695,9 @@ std::vector<std::size_t> window_points(const std::vector<double>& field_t, doubl
 
 Data select(const Data& all, const std::vector<std::size_t>& index) {
   Data d;
-  d.field_t.reserve(index.size());
-  d.y.reserve(index.size());
-  d.weight.reserve(index.size());
-  for (std::size_t i : index) {
-    d.field_t.push_back(all.field_t[i]);
-    d.y.push_back(all.y[i]);
-    d.weight.push_back(all.weight[i]);
-  }
+  d.errors_known = all.errors_known;
+  d.resize(index.size());
+  for (std::size_t k = 0; k < index.size(); ++k) d.set(k, all, index[k]);
   return d;
 }
 
@@ -623,9 +775,9 @@ SweepFitResult fit_sweep(std::span<const conductance::DeltaSigmaPoint> points,
                 std::to_string(points.size()) + " points");
 
   Data all;
-  all.field_t.reserve(points.size());
-  all.y.reserve(points.size());
-  all.weight.reserve(points.size());
+  all.resize(points.size());
+  all.errors_known = !sigma_err_s.empty();
+  const bool hln_terms = options.model == mc::Model::hln2d;
   double max_field = 0.0;
   std::size_t n_nonzero = 0;
   for (std::size_t i = 0; i < points.size(); ++i) {
@@ -639,9 +791,11 @@ SweepFitResult fit_sweep(std::span<const conductance::DeltaSigmaPoint> points,
         return fail("point " + std::to_string(i) + " has an error that is not finite and > 0");
       weight = kWl / sigma_err_s[i];
     }
-    all.field_t.push_back(b);
-    all.y.push_back(points[i].delta_sigma_s / kWl);
-    all.weight.push_back(weight);
+    all.field_t[i] = b;
+    all.y[i] = points[i].delta_sigma_s / kWl;
+    all.weight[i] = weight;
+    all.inverse_field[i] = hln_terms ? 1.0 / b : 0.0;  // +infinity at B = 0
+    all.ln_inverse_field[i] = hln_terms ? (b > 0.0 ? -std::log(b) : kInf) : 0.0;
     max_field = std::max(max_field, b);
     if (b > 0.0) ++n_nonzero;
   }

@@ -39,6 +39,14 @@
 // Lengths are clamped so that B_c starts within [field step/100, 100 window]
 // and flagged when they end outside it.
 //
+// Convergence: LM stops at the first iterate whose Gauss-Newton step left,
+// delta = (J^T J)^-1 J^T r, is shorter than 1e-3 standard errors in the
+// metric of the covariance below (sqrt(g^T delta), times sqrt((n - p)/chi2)
+// when point errors are unknown), so the answer is that close to the
+// minimum without a further trial step to confirm it; failing that, on the
+// chi-square change, step size or gradient tolerances (termination says
+// which).
+//
 // Errors are 1-sigma from the covariance (J^T J)^-1 formed from the analytic
 // Jacobian at the solution; when point errors are not given, the covariance
 // is scaled by the reduced chi-square. L_phi's error is L_phi times the error

@@ -72,6 +72,15 @@ const std::map<std::string, Evaluator>& evaluators() {
   static const std::map<std::string, Evaluator> table = {
       {"wl_bracket", [](const double* a) { return special::wl_bracket(a[0]); }},
       {"wl_bracket_derivative", [](const double* a) { return special::wl_bracket_derivative(a[0]); }},
+      // The two-argument form (ln x supplied, its own digamma and trigamma
+      // recurrences) against the same rows: its log slope divided by x is
+      // the derivative.
+      {"wl_bracket_with_log",
+       [](const double* a) { return special::wl_bracket_and_log_slope(a[0], std::log(a[0])).value; }},
+      {"wl_bracket_derivative_with_log",
+       [](const double* a) {
+         return special::wl_bracket_and_log_slope(a[0], std::log(a[0])).log_slope / a[0];
+       }},
       {"hurwitz_zeta_half", [](const double* a) { return special::hurwitz_zeta_half(a[0]); }},
       {"kawabata_f3", [](const double* a) { return special::kawabata_f3(a[0]); }},
       {"kawabata_f3_derivative", [](const double* a) { return special::kawabata_f3_derivative(a[0]); }},
@@ -129,6 +138,16 @@ TEST(ReferenceValues, EveryRowWithinTolerance) {
     EXPECT_LE(err, tolerance) << r.function << "(" << r.a[0] << ", " << r.a[1] << ", " << r.a[2]
                               << ", " << r.a[3] << ") = " << got << ", reference " << r.value
                               << " (line " << r.line << ")";
+    if (r.function == "wl_bracket" || r.function == "wl_bracket_derivative") {
+      const std::string alias = r.function == "wl_bracket" ? "wl_bracket_with_log"
+                                                            : "wl_bracket_derivative_with_log";
+      const double with_log = evaluators().at(alias)(r.a);
+      ++counts[alias];
+      const double err_with_log = std::fabs(with_log - r.value) / r.scale;
+      worst[alias] = std::max(worst[alias], err_with_log);
+      EXPECT_LE(err_with_log, tolerance) << alias << "(" << r.a[0] << ") = " << with_log
+                                         << ", reference " << r.value << " (line " << r.line << ")";
+    }
     const auto g = grad_values().find(r.function);
     if (g != grad_values().end()) {
       const double via_grad = g->second(r.a);

@@ -211,6 +211,97 @@ TEST(WlBracket, EdgesOfTheDomain) {
 }
 
 // ---------------------------------------------------------------------------
+// The two-argument forms wl_bracket_and_log_slope(x, ln x), wl_bracket(x, ln x)
+// and the sweep form, which the fits call with ln x = ln B_phi - ln|B|
+// assembled from precomputed logarithms. GSL's psi and psi_1 (gsl_sf_psi_e,
+// gsl_sf_psi_1_e, an independent implementation with its own error
+// estimates) check them over the whole range below the crossover and across
+// it. Tolerance: the terms that are added, psi(1/2 + x), ln x and for the
+// slope x psi'(1/2 + x) and 1, are each good to a few eps (GSL's err plus
+// 16 eps); what the difference then loses to cancellation no implementation
+// in double can recover, so the bound is relative to the sum of the
+// magnitudes of the terms, plus ln(x + 8) for the size of the terms a
+// digamma implementation sums internally (recurrence steps), which matters
+// near psi's zero at 1/2 + x = 1.4616 (DLMF 5.4.19) where |psi| + |ln x| ~ 0.
+
+TEST(WlBracketWithLog, AgreesWithGslPsiAndPsi1) {
+  gsl_set_error_handler_off();
+  std::vector<double> xs = logspace(-8, std::log10(8.0), 400);
+  for (double x = 7.0; x < 9.0; x += 1.0 / 64) xs.push_back(x);  // across the crossover
+  for (double x : xs) {
+    const double ln_x = std::log(x);
+    gsl_sf_result psi, psi1;
+    ASSERT_EQ(gsl_sf_psi_e(0.5 + x, &psi), GSL_SUCCESS);
+    ASSERT_EQ(gsl_sf_psi_1_e(0.5 + x, &psi1), GSL_SUCCESS);
+    const BracketAndSlope b = wl_bracket_and_log_slope(x, ln_x);
+    const double terms = std::fabs(psi.val) + std::fabs(ln_x) + std::log(x + 8.0);
+    EXPECT_LE(std::fabs(b.value - (psi.val - ln_x)), 2 * psi.err + 16 * eps * terms) << "x = " << x;
+    const double slope_terms = x * psi1.val + 1.0;
+    EXPECT_LE(std::fabs(b.log_slope - (x * psi1.val - 1.0)), 2 * x * psi1.err + 16 * eps * slope_terms)
+        << "x = " << x;
+    EXPECT_EQ(wl_bracket(x, ln_x), b.value) << "x = " << x;
+  }
+}
+
+TEST(WlBracketWithLog, AgreesWithTheOneArgumentForm) {
+  // With ln x supplied the result may differ from the one-argument form only
+  // by the rounding of ln x (held to the bound above) below the crossover,
+  // and not at all above it, where neither uses ln x.
+  for (double x : logspace(-12, 12, 2000)) {
+    const BracketAndSlope fast = wl_bracket_and_log_slope(x, std::log(x));
+    const BracketAndSlope boost = wl_bracket_and_log_slope(x);
+    if (x >= 8.0) {
+      EXPECT_EQ(fast.value, boost.value) << x;
+      EXPECT_EQ(fast.log_slope, boost.log_slope) << x;
+      continue;
+    }
+    const double terms = std::fabs(boost.value) + 2 * std::fabs(std::log(x)) + 2.0;
+    EXPECT_LE(std::fabs(fast.value - boost.value), 16 * eps * terms) << x;
+    EXPECT_LE(std::fabs(fast.log_slope - boost.log_slope), 16 * eps * (std::fabs(boost.log_slope) + 2.0))
+        << x;
+  }
+}
+
+TEST(WlBracketWithLog, SweepFormMatchesPointByPoint) {
+  // x_i = scale * factor_i with ln x_i = ln_scale + ln_factor_i; a zero field
+  // (factor = +infinity) gives exactly {0, 0}, the B -> 0 limit of the models.
+  const double inf = std::numeric_limits<double>::infinity();
+  const double scale = 4.1e-3;
+  std::vector<double> factor, ln_factor;
+  for (double b : logspace(-7, 1, 300)) {
+    factor.push_back(1.0 / b);
+    ln_factor.push_back(-std::log(b));
+  }
+  factor.push_back(inf);
+  ln_factor.push_back(inf);
+  std::vector<BracketAndSlope> out(factor.size());
+  wl_bracket_and_log_slope(scale, std::log(scale), factor, ln_factor, out);
+  for (std::size_t i = 0; i + 1 < factor.size(); ++i) {
+    const BracketAndSlope one = wl_bracket_and_log_slope(scale * factor[i], std::log(scale) + ln_factor[i]);
+    EXPECT_EQ(out[i].value, one.value) << i;
+    EXPECT_EQ(out[i].log_slope, one.log_slope) << i;
+  }
+  EXPECT_EQ(out.back().value, 0.0);
+  EXPECT_EQ(out.back().log_slope, 0.0);
+}
+
+TEST(WlBracketWithLog, EdgesOfTheDomain) {
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  EXPECT_TRUE(std::isnan(wl_bracket_and_log_slope(0.0, 0.0).value));
+  EXPECT_TRUE(std::isnan(wl_bracket_and_log_slope(-1.0, 0.0).log_slope));
+  EXPECT_TRUE(std::isnan(wl_bracket_and_log_slope(nan, 0.0).value));
+  EXPECT_TRUE(std::isnan(wl_bracket(-2.0, 0.0)));
+  EXPECT_EQ(wl_bracket(std::numeric_limits<double>::infinity(), 0.0), 0.0);
+  // Just below and at the crossover (x = 8) the two branches meet: the
+  // direct difference and the series agree to the bound used above.
+  const double below = std::nextafter(8.0, 0.0);
+  const BracketAndSlope a = wl_bracket_and_log_slope(below, std::log(below));
+  const BracketAndSlope b = wl_bracket_and_log_slope(8.0, std::log(8.0));
+  EXPECT_LE(std::fabs(a.value - b.value), 16 * eps * (2 * std::log(8.0) + 2.0));
+  EXPECT_LE(std::fabs(a.log_slope - b.log_slope), 16 * eps * 2.0);
+}
+
+// ---------------------------------------------------------------------------
 // Hurwitz zeta(1/2, a) and f3.
 
 // zeta(1/2) = -1.4603545088095868129 (mpmath.zeta(0.5) at 30 digits; GSL
