@@ -262,4 +262,24 @@ PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, Prepar
   return {true, {}};
 }
 
+double point_noise_s(std::span<const DeltaSigmaPoint> points) {
+  std::vector<double> e;
+  if (points.size() >= 3) e.reserve(points.size() - 2);
+  for (std::size_t i = 1; i + 1 < points.size(); ++i) {
+    const double b0 = points[i - 1].field_t, b1 = points[i].field_t, b2 = points[i + 1].field_t;
+    if (!(b2 > b0)) continue;  // repeated fields: no line through the neighbours
+    const double a = (b2 - b1) / (b2 - b0);
+    const double b = 1.0 - a;
+    const double r =
+        a * points[i - 1].delta_sigma_s + b * points[i + 1].delta_sigma_s - points[i].delta_sigma_s;
+    e.push_back(std::fabs(r) / std::sqrt(a * a + b * b + 1.0));
+  }
+  if (e.empty()) return 0.0;
+  const auto mid = e.begin() + static_cast<std::ptrdiff_t>(e.size() / 2);
+  std::nth_element(e.begin(), mid, e.end());
+  double median = *mid;
+  if (e.size() % 2 == 0) median = 0.5 * (median + *std::max_element(e.begin(), mid));
+  return 1.4826 * median;
+}
+
 }  // namespace lphi::conductance

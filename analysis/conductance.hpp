@@ -73,4 +73,21 @@ struct PrepareStatus {
 PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance_ohm,
                             PreparedSweep& out);
 
+// The standard deviation of the noise on the points of a prepared sweep,
+// estimated without any model of the curve: the difference-based estimator
+// of T. Gasser, L. Sroka and C. Jennen-Steinmetz, Biometrika 73, 625 (1986).
+// Each inner point is compared with the straight line through its two
+// neighbours,
+//   e_i = (a_i y_(i-1) + b_i y_(i+1) - y_i) / sqrt(a_i^2 + b_i^2 + 1),
+//   a_i = (B_(i+1) - B_i) / (B_(i+1) - B_(i-1)),  b_i = 1 - a_i,
+// which for white noise of variance s^2 has variance s^2 whatever the
+// spacing, while a smooth curve contributes only its second derivative
+// times the spacing squared. The scale is taken robustly: s = 1.4826 *
+// median |e_i| (1.4826 = 1/Phi^-1(3/4), the consistency factor of the
+// median absolute deviation for a normal distribution), so an odd spike
+// does not inflate it. Needs at least 3 points with distinct fields; returns
+// 0 otherwise (unknown). The points must be sorted by field (as
+// prepare_sweep leaves them).
+double point_noise_s(std::span<const DeltaSigmaPoint> points);
+
 }  // namespace lphi::conductance

@@ -1,5 +1,6 @@
-// lphid: ingests readings into the data directory's database and answers
-// status queries. See daemon/PROTOCOL.md for the sockets and the config.
+// lphid: ingests readings into the data directory's database, analyses them
+// live (sweeps, fits, the L_phi(T) verdict), raises alerts, publishes events
+// and answers queries. See daemon/PROTOCOL.md for the sockets and the config.
 #include <signal.h>
 #include <systemd/sd-daemon.h>
 #include <unistd.h>
@@ -13,10 +14,13 @@
 #include <spdlog/spdlog.h>
 #include <zmq.hpp>
 
+#include "daemon/alerts/alert_engine.hpp"
+#include "daemon/alerts/event_publisher.hpp"
 #include "daemon/config/config.hpp"
 #include "daemon/config/data_dir.hpp"
 #include "daemon/ingest/driver_host.hpp"
 #include "daemon/ingest/ingest_server.hpp"
+#include "daemon/live/live_analysis.hpp"
 #include "daemon/store/writer.hpp"
 
 namespace {
@@ -128,7 +132,8 @@ int serve(const std::string& dir_option, const std::string& config_option, const
   writer->start();
   zmq::context_t context(1);
   lphi::ingest::IngestOptions io;
-  io.endpoints = lphi::config::daemon_endpoints(dir, config.ingest_endpoint, config.control_endpoint);
+  io.endpoints = lphi::config::daemon_endpoints(dir, config.ingest_endpoint, config.control_endpoint,
+                                                  config.events_endpoint);
   io.data_dir = dir;
   io.limits = config.limits;
   io.time_backward_tolerance_s = config.time_backward_tolerance_s;
@@ -153,14 +158,57 @@ int serve(const std::string& dir_option, const std::string& config_option, const
     return 1;
   }
   if (drivers.size() > 0) server->set_driver_status([&drivers] { return drivers.status_json(); });
+
+  // The event socket, the alert engine and the live analysis.
+  auto fail = [&](const std::string& message) {
+    spdlog::critical("{}", message);
+    std::cerr << "lphid: " << message << "\n";
+    server.reset();
+    writer->stop();
+    return 1;
+  };
+  if (auto e = lphi::config::prepare_ipc_endpoint(io.endpoints.events)) return fail(*e);
+  std::unique_ptr<lphi::alerts::EventPublisher> events;
+  if (auto s = lphi::alerts::EventPublisher::create(context, io.endpoints.events, events); !s) {
+    return fail(s.message);
+  }
+  io.endpoints.events = events->endpoint();
+  if (auto e = lphi::config::restrict_ipc_endpoint(io.endpoints.events)) spdlog::warn("{}", *e);
+  std::unique_ptr<lphi::alerts::AlertEngine> engine;
+  if (auto s = lphi::alerts::AlertEngine::create(config.alerts, lphi::store::database_path(dir), events.get(),
+                                                  engine);
+      !s) {
+    return fail(s.message);
+  }
+  lphi::live::LiveOptions lo;
+  lo.data_dir = dir;
+  std::unique_ptr<lphi::live::LiveAnalysis> live;
+  if (auto s = lphi::live::LiveAnalysis::create(config, lo, engine.get(), events.get(), live); !s) {
+    return fail(s.message);
+  }
+  for (const auto& type : lphi::live::LiveAnalysis::request_types()) {
+    server->add_control_handler(type, [&live](const nlohmann::json& r) { return live->handle_request(r); });
+  }
+  for (const char* type : {"alerts", "ack"}) {
+    server->add_control_handler(type, [&engine](const nlohmann::json& r) { return engine->handle_request(r); });
+  }
+  server->set_tick_handler([&live](const nlohmann::json& status) { live->on_health(status); });
+
   if (auto e = lphi::config::write_endpoints_file(dir, io.endpoints)) spdlog::warn("{}", *e);
-  spdlog::info("lphid {} serving {} (ingest {}, control {}, {} sources, {} drivers)", ::getpid(), dir,
-               io.endpoints.ingest, io.endpoints.control, sources.size(), drivers.size());
+  spdlog::info("lphid {} serving {} (ingest {}, control {}, events {}, {} sources, {} samples, {} drivers)",
+               ::getpid(), dir, io.endpoints.ingest, io.endpoints.control, io.endpoints.events,
+               sources.size(), config.samples.size(), drivers.size());
+  live->start();
   drivers.start();
   sd_notify(0, "READY=1");
   server->run(stop_requested);
-  // The drivers stop before the server they hand readings to goes away.
+  // The drivers stop before the server they hand readings to goes away; the
+  // analysis before the engine and the publisher it reports to.
   drivers.stop();
+  live->stop();
+  live.reset();
+  engine.reset();
+  events.reset();
   server.reset();
   writer.reset();
   spdlog::info("lphid stopped");

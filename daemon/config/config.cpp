@@ -100,6 +100,22 @@ class Checker {
     };
   }
 
+  Handler non_negative_to(double& out) {
+    return [this, &out](const toml::node& n, const std::string& key) {
+      auto v = number(n, key);
+      if (!v) return;
+      if (!(*v >= 0.0)) return fail(n, key, "must not be negative");
+      out = *v;
+    };
+  }
+
+  Handler bool_to(bool& out) {
+    return [this, &out](const toml::node& n, const std::string& key) {
+      if (!n.is_boolean()) return fail(n, key, "must be true or false");
+      out = n.as_boolean()->get();
+    };
+  }
+
   Handler optional_positive_to(std::optional<double>& out) {
     return [this, &out](const toml::node& n, const std::string& key) {
       auto v = number(n, key);
@@ -332,13 +348,6 @@ std::string_view driver_type_name(DriverType type) {
   return "none";
 }
 
-const SourceConfig* Config::find_source(std::string_view name) const {
-  for (const auto& s : sources) {
-    if (s.name == name) return &s;
-  }
-  return nullptr;
-}
-
 std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
   Config config;
   Checker c;
@@ -357,7 +366,8 @@ std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
                          {{"log_level", c.string_to(config.log_level,
                                                     {"trace", "debug", "info", "warn", "error"})},
                           {"ingest_endpoint", c.string_to(config.ingest_endpoint)},
-                          {"control_endpoint", c.string_to(config.control_endpoint)}});
+                          {"control_endpoint", c.string_to(config.control_endpoint)},
+                          {"events_endpoint", c.string_to(config.events_endpoint)}});
                })},
               {"store", c.sub_table([&](const toml::table& t, const std::string& p) {
                  c.table(t, p,
@@ -380,6 +390,10 @@ std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
                  config.sources.push_back(parse_source(c, t, p));
                  source_lines.push_back(t.source().begin.line);
                })},
+              {"alerts", [&](const toml::node& n, const std::string& key) {
+                 if (!n.is_table()) return c.fail(n, key, "must be a table ([alerts])");
+                 alerts::parse_alert_config(&n, config.alerts, c.errors);
+               }},
               {"sample", c.array_of_tables([&](const toml::table& t, const std::string& p) {
                  SampleConfig s;
                  c.table(t, p,
@@ -395,7 +409,27 @@ std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
                           {"gain", c.optional_positive_to(s.gain)},
                           {"diffusion_m2s", c.optional_positive_to(s.diffusion_m2s)},
                           {"mean_free_path_m", c.optional_positive_to(s.mean_free_path_m)},
-                          {"alpha_fixed", c.optional_number_to(s.alpha_fixed)}});
+                          {"alpha_fixed", c.optional_number_to(s.alpha_fixed)},
+                          {"max_age_temperature_s", c.positive_to(s.max_age_temperature_s)},
+                          {"max_age_field_s", c.positive_to(s.max_age_field_s)},
+                          {"max_hold_s", c.positive_to(s.max_hold_s)},
+                          {"sweep_min_span_t", c.positive_to(s.sweep_min_span_t)},
+                          {"reversal_tolerance_t", c.positive_to(s.reversal_tolerance_t)},
+                          {"field_step_t", c.non_negative_to(s.field_step_t)},
+                          {"plateau_relative_spread", c.positive_to(s.plateau_relative_spread)},
+                          {"plateau_min_duration_s", c.non_negative_to(s.plateau_min_duration_s)},
+                          {"settling_time_constants", c.non_negative_to(s.settling_time_constants)},
+                          {"settling_unknown_tau_s", c.non_negative_to(s.settling_unknown_tau_s)},
+                          {"combine_up_down", c.bool_to(s.combine_up_down)},
+                          {"fit_background", c.bool_to(s.fit_background)},
+                          {"probe_length_m", c.optional_positive_to(s.probe_length_m)},
+                          {"fit_window_t", c.optional_positive_to(s.fit_window_t)},
+                          {"excitation_ratio_max", c.positive_to(s.excitation_ratio_max)},
+                          {"quadrature_ratio_max", c.positive_to(s.quadrature_ratio_max)}});
+                 if (s.max_hold_s < std::max(s.max_age_temperature_s, s.max_age_field_s)) {
+                   c.errors.push_back({t.source().begin.line, p + ".max_hold_s",
+                                       "must be at least max_age_temperature_s and max_age_field_s"});
+                 }
                  c.require(t, p,
                            {"name", "model", "squares", "width_m", "thickness_m", "excitation_a",
                             "lockin", "thermometer", "field"});
@@ -439,11 +473,12 @@ std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
     check_ref(s.thermometer, protocol::SourceKind::thermometer, "thermometer");
     check_ref(s.field, protocol::SourceKind::field, "field");
   }
-  for (const auto* endpoint : {&config.ingest_endpoint, &config.control_endpoint}) {
+  for (const auto& [endpoint, key] :
+       {std::pair{&config.ingest_endpoint, "daemon.ingest_endpoint"},
+        std::pair{&config.control_endpoint, "daemon.control_endpoint"},
+        std::pair{&config.events_endpoint, "daemon.events_endpoint"}}) {
     if (!endpoint->empty() && endpoint->rfind("ipc://", 0) != 0 && endpoint->rfind("tcp://", 0) != 0) {
-      c.errors.push_back({0, endpoint == &config.ingest_endpoint ? "daemon.ingest_endpoint"
-                                                                 : "daemon.control_endpoint",
-                          "must start with ipc:// or tcp://"});
+      c.errors.push_back({0, key, "must start with ipc:// or tcp://"});
     }
   }
   std::stable_sort(c.errors.begin(), c.errors.end(),

@@ -47,13 +47,50 @@ struct SampleConfig {
   double excitation_a = 0.0;
   std::string lockin, thermometer, field;
   std::optional<double> gain, diffusion_m2s, mean_free_path_m, alpha_fixed;
+  // Live analysis (defaults: those of the analysis option structs,
+  // analysis/alignment.hpp and analysis/segmenter.hpp).
+  double max_age_temperature_s = 30.0;   // aligning: newest thermometer reading at most this old
+  double max_age_field_s = 2.0;          // ... and field reading
+  double max_hold_s = 60.0;              // event-time lag tolerated between the three streams
+  double sweep_min_span_t = 0.1;         // a sweep reaches below -span/2 and above +span/2
+  double reversal_tolerance_t = 1e-3;    // field noise tolerated without ending a sweep
+  double field_step_t = 0.0;             // a step this large between readings settles the lock-in; 0 off
+  double plateau_relative_spread = 0.02; // (T_max - T_min)/T_mean within a plateau
+  double plateau_min_duration_s = 300.0;
+  double settling_time_constants = 5.0;  // readings within this many lock-in tau after a change are dropped
+  double settling_unknown_tau_s = 1.0;   // tau assumed when the lock-in does not report it
+  bool combine_up_down = false;          // fit an up and the following down sweep of a plateau together
+  bool fit_background = false;           // classical c*B^2 term
+  std::optional<double> probe_length_m;  // length between the voltage probes (heating check)
+  std::optional<double> fit_window_t;    // fixed field window instead of the automatic one
+  double excitation_ratio_max = 1.0;     // e V/(k_B T) at or above this is a heating risk
+  double quadrature_ratio_max = 0.1;     // |Y/X| above this is large
 };
 
-struct Config {
+struct ConfigError {
+  std::size_t line = 0;  // 1-based; 0 when the error has no place in the file
+  std::string key;       // dotted, e.g. "sample[2].squares"
+  std::string message;
+};
+
+}  // namespace lphi::config
+
+namespace lphi::alerts {
+struct AlertConfig;  // daemon/alerts/alert_config.hpp, included at the end
+}  // namespace lphi::alerts
+
+namespace lphi::config {
+
+// Config is a template only so that daemon/alerts/alert_config.hpp, which
+// takes ConfigError from this header, may be included before it: the member
+// `alerts` needs AlertConfig complete only where a Config is made.
+template <class AlertConfigT = alerts::AlertConfig>
+struct BasicConfig {
   // [daemon]
   std::string log_level = "info";   // trace | debug | info | warn | error
   std::string ingest_endpoint;      // empty: ipc://DIR/ingest.sock
   std::string control_endpoint;     // empty: ipc://DIR/control.sock
+  std::string events_endpoint;      // empty: ipc://DIR/events.sock
   // [store]
   bool synchronous_full = false;    // synchronous = "normal" | "full"
   std::int64_t commit_max_readings = 20000;
@@ -66,15 +103,17 @@ struct Config {
   double time_future_tolerance_s = 86400.0; // how far t may lie ahead of lphid's clock
   std::vector<SourceConfig> sources;
   std::vector<SampleConfig> samples;
+  // [alerts]: parsed by lphi::alerts::parse_alert_config.
+  AlertConfigT alerts;
 
-  const SourceConfig* find_source(std::string_view name) const;
+  const SourceConfig* find_source(std::string_view name) const {
+    for (const auto& s : sources) {
+      if (s.name == name) return &s;
+    }
+    return nullptr;
+  }
 };
-
-struct ConfigError {
-  std::size_t line = 0;  // 1-based; 0 when the error has no place in the file
-  std::string key;       // dotted, e.g. "sample[2].squares"
-  std::string message;
-};
+using Config = BasicConfig<>;
 
 // Parses and validates; the config is only meaningful when no error is returned.
 std::vector<ConfigError> parse_config(std::string_view text, Config& out);
@@ -87,3 +126,5 @@ std::string format_error(std::string_view file, const ConfigError& error);
 std::string_view example_config();
 
 }  // namespace lphi::config
+
+#include "daemon/alerts/alert_config.hpp"  // after Config: see BasicConfig

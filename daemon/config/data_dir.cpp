@@ -40,11 +40,13 @@ std::string absolute_data_dir(std::string_view dir) {
 }
 
 Endpoints daemon_endpoints(std::string_view dir, const std::string& ingest_configured,
-                           const std::string& control_configured) {
+                           const std::string& control_configured,
+                           const std::string& events_configured) {
   const std::string abs = absolute_data_dir(dir);
   Endpoints e;
   e.ingest = ingest_configured.empty() ? "ipc://" + in_dir(abs, "ingest.sock") : ingest_configured;
   e.control = control_configured.empty() ? "ipc://" + in_dir(abs, "control.sock") : control_configured;
+  e.events = events_configured.empty() ? "ipc://" + in_dir(abs, "events.sock") : events_configured;
   return e;
 }
 
@@ -56,6 +58,7 @@ Endpoints client_endpoints(std::string_view dir) {
   if (j.is_object()) {
     if (auto it = j.find("ingest"); it != j.end() && it->is_string()) e.ingest = it->get<std::string>();
     if (auto it = j.find("control"); it != j.end() && it->is_string()) e.control = it->get<std::string>();
+    if (auto it = j.find("events"); it != j.end() && it->is_string()) e.events = it->get<std::string>();
   }
   return e;
 }
@@ -65,7 +68,7 @@ std::optional<std::string> write_endpoints_file(std::string_view dir, const Endp
   const std::string tmp = path + ".tmp";
   {
     std::ofstream out(tmp, std::ios::trunc);
-    out << nlohmann::json{{"ingest", e.ingest}, {"control", e.control}}.dump(2) << "\n";
+    out << nlohmann::json{{"ingest", e.ingest}, {"control", e.control}, {"events", e.events}}.dump(2) << "\n";
     if (!out) return "cannot write " + tmp;
   }
   if (std::rename(tmp.c_str(), path.c_str()) != 0) {

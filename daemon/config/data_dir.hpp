@@ -1,5 +1,5 @@
 // One lphid instance lives in one data directory: its database (lphi.db),
-// its sockets (ingest.sock, control.sock), its log (lphid.log), the file
+// its sockets (ingest.sock, control.sock, events.sock), its log (lphid.log), the file
 // naming its endpoints (endpoints.json, for clients) and its lock (lphid.lock).
 //
 // InstanceLock holds an flock(2) on lphid.lock for as long as it lives, so a
@@ -16,6 +16,7 @@ namespace lphi::config {
 struct Endpoints {
   std::string ingest;
   std::string control;
+  std::string events;  // the event socket (ZeroMQ PUB): sweeps, fits, verdicts, alerts
 };
 
 // The absolute form of dir (sockets must be found from any working directory).
@@ -23,7 +24,8 @@ std::string absolute_data_dir(std::string_view dir);
 
 // The endpoints lphid binds: configured ones, or ipc:// sockets inside dir.
 Endpoints daemon_endpoints(std::string_view dir, const std::string& ingest_configured,
-                           const std::string& control_configured);
+                           const std::string& control_configured,
+                           const std::string& events_configured = "");
 
 // What clients connect to: the endpoints lphid recorded in dir, or the defaults.
 Endpoints client_endpoints(std::string_view dir);

@@ -1,9 +1,12 @@
 #include "daemon/config/config.hpp"
 
+#include <string>
+
 namespace lphi::config {
 
-std::string_view example_config() {
-  return R"toml(# lphid configuration (TOML). Unknown keys are errors.
+namespace {
+
+constexpr std::string_view daemon_part = R"toml(# lphid configuration (TOML). Unknown keys are errors.
 # Check a file with: lphid --check-config FILE
 
 [daemon]
@@ -12,6 +15,7 @@ log_level = "info"          # trace | debug | info | warn | error
 # tcp:// may be given instead, e.g. "tcp://127.0.0.1:5555".
 ingest_endpoint = ""        # "" means ipc://DATA_DIR/ingest.sock
 control_endpoint = ""       # "" means ipc://DATA_DIR/control.sock
+events_endpoint = ""        # "" means ipc://DATA_DIR/events.sock (publishes sweeps, fits, verdicts, alerts)
 
 [store]
 synchronous = "normal"      # normal: survives a crash of lphid; full: also a power cut
@@ -86,7 +90,32 @@ field = "magnet"
 # diffusion_m2s = 1e-3
 # mean_free_path_m = 5e-9
 # alpha_fixed = -0.5
+# Live analysis (these are the defaults):
+# max_age_temperature_s = 30.0   # a lock-in reading needs a thermometer reading this recent on each side
+# max_age_field_s = 2.0          # ... and a field reading
+# max_hold_s = 60.0              # how far the three streams may lag each other in time
+# sweep_min_span_t = 0.1         # a sweep reaches below -span/2 and above +span/2 tesla
+# reversal_tolerance_t = 1e-3    # field noise that does not end a sweep
+# field_step_t = 0.0             # a field step this large settles the lock-in again; 0: off
+# plateau_relative_spread = 0.02 # (T_max - T_min)/T_mean within one temperature plateau
+# plateau_min_duration_s = 300.0
+# settling_time_constants = 5.0  # readings within 5 lock-in time constants after a change are dropped
+# settling_unknown_tau_s = 1.0   # the time constant assumed when the lock-in does not report one
+# combine_up_down = false        # fit an up sweep and the next down sweep of one plateau together
+# fit_background = false         # also fit a classical c*B^2 term
+# probe_length_m = 100e-6        # between the voltage probes, for the heating check
+# fit_window_t = 0.05            # a fixed field window instead of the automatic one
+# excitation_ratio_max = 1.0     # e V/(k_B T) at or above this is a heating risk
+# quadrature_ratio_max = 0.1     # |Y/X| above this is large
 )toml";
+
+}  // namespace
+
+std::string_view example_config() {
+  // The [alerts] table is documented by the alert rules' own example.
+  static const std::string text =
+      std::string(daemon_part) + "\n" + std::string(alerts::example_alert_config());
+  return text;
 }
 
 }  // namespace lphi::config

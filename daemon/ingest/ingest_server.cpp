@@ -153,6 +153,7 @@ void IngestServer::run(const std::atomic<bool>& stop) {
     if (now - last_tick >= 1.0) {
       last_tick = now;
       for (auto& [name, s] : sources_) s->rate.sample(now, s->accepted);
+      if (tick_handler_) tick_handler_(status());
     }
   }
   spdlog::info("stopping: writing what is queued");
@@ -517,12 +518,33 @@ void IngestServer::on_control_message() {
   auto bad = protocol::decode_frame(payload, limits, request, peer.encoding);
   if (bad) return reply(control_, peer, protocol::error_message({std::nullopt, bad->reason, bad->detail}));
   auto type = request.find("type");
-  if (type == request.end() || !type->is_string() || type->get<std::string>() != "status") {
+  const std::string name = type != request.end() && type->is_string() ? type->get<std::string>() : "";
+  if (name == "status") return reply(control_, peer, status());
+  auto handler = control_handlers_.find(name);
+  if (handler == control_handlers_.end()) {
+    std::string known = "status";
+    for (const auto& [t, h] : control_handlers_) known += ", " + t;
     return reply(control_, peer,
                  protocol::error_message({std::nullopt, Reason::unknown_type,
-                                          "the control socket answers {\"type\":\"status\"}"}));
+                                          "the control socket answers the types " + known}));
   }
-  reply(control_, peer, status());
+  json answer;
+  try {
+    answer = handler->second(request);
+  } catch (const std::exception& e) {
+    spdlog::error("control request \"{}\" failed: {}", name, e.what());
+    answer = protocol::error_message(
+        {std::nullopt, Reason::storage_error, "the " + name + " request failed: " + e.what()});
+  }
+  reply(control_, peer, answer);
+}
+
+void IngestServer::add_control_handler(std::string type, ControlHandler handler) {
+  control_handlers_[std::move(type)] = std::move(handler);
+}
+
+void IngestServer::set_tick_handler(std::function<void(const json& status)> handler) {
+  tick_handler_ = std::move(handler);
 }
 
 json IngestServer::status() const {
@@ -540,6 +562,7 @@ json IngestServer::status() const {
     j["highest_seq"] = s->durable_seq ? json(*s->durable_seq) : json(nullptr);
     j["last_t"] = s->last_t ? json(*s->last_t) : json(nullptr);
     j["age_s"] = s->last_t ? json(now - *s->last_t) : json(nullptr);
+    j["last_arrival_unix"] = s->last_arrival_unix > 0.0 ? json(s->last_arrival_unix) : json(nullptr);
     if (!s->instrument_identity.empty()) j["identity"] = s->instrument_identity;
     sources.push_back(std::move(j));
   }

@@ -14,7 +14,8 @@
 // room again; ZeroMQ's bounded pipes then push back to the senders, who keep
 // their unacknowledged readings. No queue grows without bound.
 //
-// The control socket (ROUTER, JSON request/reply) answers {"type":"status"}.
+// The control socket (ROUTER, JSON request/reply) answers {"type":"status"}
+// and every request type registered with add_control_handler().
 //
 // lphid's own instrument drivers hand their readings in through
 // offer_driver_readings(). They take exactly the path of a batch from the
@@ -88,6 +89,15 @@ class IngestServer {
   // Before run(): adds the result of `provider` as "drivers" to the status
   // reply; it is called on run()'s thread and must be thread-safe.
   void set_driver_status(std::function<nlohmann::json()> provider);
+  // Before run(): answers control requests whose "type" is `type` with what
+  // `handler` returns (its reply should carry the same "type", or be a
+  // protocol::error_message). Called on run()'s thread, so it must be quick
+  // and thread-safe; an exception it throws becomes an error reply.
+  using ControlHandler = std::function<nlohmann::json(const nlohmann::json& request)>;
+  void add_control_handler(std::string type, ControlHandler handler);
+  // Before run(): called about once a second on run()'s thread with the
+  // status reply (lphid's health timer); must be quick.
+  void set_tick_handler(std::function<void(const nlohmann::json& status)> handler);
 
  private:
   struct Peer {
@@ -155,6 +165,8 @@ class IngestServer {
   double started_unix_ = 0.0;
 
   std::function<nlohmann::json()> driver_status_;
+  std::map<std::string, ControlHandler> control_handlers_;
+  std::function<void(const nlohmann::json&)> tick_handler_;
   // Driver hand-overs: one slot per source (keys fixed at create()), and
   // identities, guarded by inbox_mutex_; this thread takes them out.
   std::mutex inbox_mutex_;

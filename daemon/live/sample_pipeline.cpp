@@ -1,0 +1,466 @@
+#include "daemon/live/sample_pipeline.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <utility>
+
+#include "analysis/conductance.hpp"
+#include "analysis/constants.hpp"
+#include "analysis/verdict.hpp"
+#include "daemon/live/result_json.hpp"
+
+namespace lphi::live {
+
+namespace {
+
+bool positive_finite(double v) { return std::isfinite(v) && v > 0.0; }
+
+// Chan, Golub and LeVeque's pairwise combination of means and variances
+// (Am. Stat. 37, 242 (1983)): the statistics of the union of two samples.
+segment::TemperatureStats combine(const segment::TemperatureStats& a, const segment::TemperatureStats& b) {
+  if (a.n == 0) return b;
+  if (b.n == 0) return a;
+  segment::TemperatureStats c;
+  c.n = a.n + b.n;
+  const double na = static_cast<double>(a.n), nb = static_cast<double>(b.n), n = static_cast<double>(c.n);
+  const double delta = b.mean_k - a.mean_k;
+  c.mean_k = a.mean_k + delta * nb / n;
+  const double m2 = a.std_k * a.std_k * (na - 1.0) + b.std_k * b.std_k * (nb - 1.0) + delta * delta * na * nb / n;
+  c.std_k = c.n > 1 ? std::sqrt(m2 / (n - 1.0)) : 0.0;
+  c.min_k = std::min(a.min_k, b.min_k);
+  c.max_k = std::max(a.max_k, b.max_k);
+  return c;
+}
+
+double median(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  const std::size_t n = v.size();
+  return n % 2 == 1 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+}
+
+nlohmann::json optional_bool_json(const std::optional<bool>& b) {
+  return b ? nlohmann::json(*b) : nlohmann::json(nullptr);
+}
+
+}  // namespace
+
+bool FitRecord::operator==(const FitRecord& o) const {
+  return sweep_index == o.sweep_index && combined_with == o.combined_with && ok == o.ok &&
+         error == o.error && model == o.model && lphi_m == o.lphi_m && lphi_err_m == o.lphi_err_m &&
+         chi2_red == o.chi2_red && converged == o.converged && flags == o.flags &&
+         temperature_k == o.temperature_k && temperature_spread_k == o.temperature_spread_k &&
+         temperature_run == o.temperature_run && temperature_unstable == o.temperature_unstable &&
+         sigma0_s == o.sigma0_s && sigma0_err_s == o.sigma0_err_s &&
+         used_in_dephasing == o.used_in_dephasing && quality == o.quality && result == o.result &&
+         t_s == o.t_s;
+}
+
+void PipelineOutput::clear() {
+  sweeps.clear();
+  fits.clear();
+  zero_field.clear();
+  verdicts.clear();
+}
+
+int model_dimension(mc::Model model) {
+  switch (model) {
+    case mc::Model::wire1d: return 1;
+    case mc::Model::kawabata3d: return 3;
+    case mc::Model::hln2d:
+    case mc::Model::hln2d_so: break;
+  }
+  return 2;
+}
+
+std::string validate(const SampleSettings& s) {
+  if (s.name.empty()) return "the sample has no name";
+  if (!positive_finite(s.excitation_a)) return "excitation_a must be a positive current";
+  if (!positive_finite(s.gain)) return "gain must be positive";
+  if (!positive_finite(s.geometry.squares)) return "squares must be positive";
+  if (s.model == mc::Model::wire1d && !positive_finite(s.geometry.width_m)) {
+    return "the wire1d model needs width_m > 0";
+  }
+  if (s.model == mc::Model::kawabata3d && !positive_finite(s.geometry.thickness_m)) {
+    return "the kawabata3d model needs thickness_m > 0";
+  }
+  if (s.fit_window_t && !positive_finite(*s.fit_window_t)) return "fit_window_t must be positive";
+  if (s.probe_length_m && !positive_finite(*s.probe_length_m)) return "probe_length_m must be positive";
+  if (s.max_queued_sweeps < 1) return "max_queued_sweeps must be at least 1";
+  if (auto e = align::validate(s.aligner); !e.empty()) return e;
+  if (auto e = segment::validate(s.segmenter); !e.empty()) return e;
+  return "";
+}
+
+nlohmann::json no_data_verdict_json() {
+  dephasing::DephasingResult empty;
+  nlohmann::json j = dephasing_json(empty);
+  j["electrons_cooling"] = nullptr;
+  j["likely_cause"] = nullptr;
+  j["regime"] = nullptr;
+  j["updated_at"] = nullptr;
+  j["evidence"] = nlohmann::json::object();
+  j["n_fits"] = 0;
+  return j;
+}
+
+SamplePipeline::SamplePipeline(SampleSettings settings, std::map<std::int64_t, FitRecord> stored)
+    : settings_(std::move(settings)),
+      error_(validate(settings_)),
+      aligner_(settings_.aligner),
+      segmenter_(settings_.segmenter),
+      stored_(std::move(stored)) {}
+
+void SamplePipeline::push(const align::LockinReading& r) {
+  if (!error_.empty()) return;
+  aligner_.push(r, scratch_);
+  take(scratch_);
+}
+
+void SamplePipeline::push(const align::TemperatureReading& r) {
+  if (!error_.empty()) return;
+  aligner_.push(r, scratch_);
+  take(scratch_);
+}
+
+void SamplePipeline::push(const align::FieldReading& r) {
+  if (!error_.empty()) return;
+  aligner_.push(r, scratch_);
+  take(scratch_);
+}
+
+void SamplePipeline::take(std::vector<align::AlignedPoint>& points) {
+  if (points.empty()) return;
+  segmenter_.push(std::span<const align::AlignedPoint>(points), segmented_);
+  points.clear();
+  segmented_.plateaus.clear();  // plateaus matter through each sweep's temperature run
+  for (auto& s : segmented_.sweeps) queue_.push_back(std::move(s));
+  segmented_.sweeps.clear();
+}
+
+void SamplePipeline::process(PipelineOutput& out, std::size_t max_sweeps) {
+  for (std::size_t i = 0; i < max_sweeps && !queue_.empty(); ++i) {
+    segment::Sweep sweep = std::move(queue_.front());
+    queue_.pop_front();
+    handle(std::move(sweep), out);
+  }
+}
+
+void SamplePipeline::finish(PipelineOutput& out) {
+  if (!error_.empty()) return;
+  aligner_.flush(scratch_);
+  take(scratch_);
+  segmenter_.finish(segmented_);
+  segmented_.plateaus.clear();
+  for (auto& s : segmented_.sweeps) queue_.push_back(std::move(s));
+  segmented_.sweeps.clear();
+  process(out);
+  if (waiting_) {
+    segment::Sweep alone = std::move(*waiting_);
+    waiting_.reset();
+    fit_and_record({&alone}, out);
+  }
+}
+
+void SamplePipeline::handle(segment::Sweep&& sweep, PipelineOutput& out) {
+  ++sweeps_seen_;
+  out.sweeps.push_back(describe(sweep));
+  if (!settings_.combine_up_down) return fit_and_record({&sweep}, out);
+  if (waiting_ && !sweep.temperature_unstable && waiting_->temperature_run == sweep.temperature_run &&
+      waiting_->direction != sweep.direction) {
+    segment::Sweep first = std::move(*waiting_);
+    waiting_.reset();
+    return fit_and_record({&first, &sweep}, out);
+  }
+  if (waiting_) {
+    segment::Sweep alone = std::move(*waiting_);
+    waiting_.reset();
+    fit_and_record({&alone}, out);
+  }
+  if (sweep.temperature_unstable) return fit_and_record({&sweep}, out);
+  waiting_ = std::move(sweep);
+}
+
+SweepRecord SamplePipeline::describe(const segment::Sweep& s) const {
+  SweepRecord r;
+  r.index = static_cast<std::int64_t>(s.index);
+  r.direction = s.direction;
+  r.t_start_s = s.t_start_s;
+  r.t_end_s = s.t_end_s;
+  r.field_min_t = s.field_min_t;
+  r.field_max_t = s.field_max_t;
+  r.n_points = s.points.size();
+  r.temperature = s.temperature;
+  r.temperature_run = static_cast<std::int64_t>(s.temperature_run);
+  r.temperature_unstable = s.temperature_unstable;
+  r.truncated = s.truncated;
+  double sum_abs_x = 0.0;
+  for (const auto& p : s.points) {
+    const auto lc = checks::lockin_reading(p.x_v, p.y_v, p.range_v, p.overload, settings_.lockin);
+    if (lc.overload) ++r.n_overload;
+    r.max_quadrature_ratio = std::max(r.max_quadrature_ratio, lc.quadrature_ratio);
+    sum_abs_x += std::abs(p.x_v);
+  }
+  if (!s.points.empty()) {
+    r.sample_voltage_v = sum_abs_x / static_cast<double>(s.points.size()) / settings_.gain;
+    const auto heating = checks::excitation_heating(r.sample_voltage_v, s.temperature.mean_k, 0.0, 0.0,
+                                                    settings_.heating);
+    if (heating.error.empty() && std::isfinite(heating.ratio)) r.excitation_ratio = heating.ratio;
+  }
+  return r;
+}
+
+FitRecord SamplePipeline::fit_points(const std::vector<const segment::Sweep*>& sweeps,
+                                     const SweepRecord& last) {
+  FitRecord rec;
+  rec.model = std::string(mc::model_name(settings_.model));
+  rec.t_s = last.t_end_s;
+  std::vector<conductance::FieldPoint> rsq;
+  for (const auto* s : sweeps) {
+    for (const auto& p : s->points) {
+      const double r = conductance::resistance_ohm(p.x_v, settings_.excitation_a, settings_.gain);
+      rsq.push_back({p.field_t, conductance::sheet_resistance_ohm(r, settings_.geometry.squares)});
+    }
+  }
+  conductance::PreparedSweep prepared;
+  const auto status = conductance::prepare_sweep(rsq, prepared);
+  if (!status.ok) {
+    rec.error = "the sweep could not be prepared: " + status.error;
+    rec.quality = {"fit-failed: " + rec.error};
+    rec.result = nlohmann::json{{"model", rec.model}, {"error", rec.error}};
+    return rec;
+  }
+  rec.sigma0_s = prepared.sigma0_s;
+  rec.sigma0_err_s = prepared.sigma0_err_s;
+  fit::SweepFitOptions options;
+  options.model = settings_.model;
+  options.geometry = settings_.geometry;
+  options.alpha_fixed = settings_.alpha_fixed;
+  options.fit_background = settings_.fit_background;
+  options.window_t = settings_.fit_window_t;
+  const fit::SweepFitResult result = fit::fit_sweep(prepared.points, options);
+  rec.ok = result.ok;
+  rec.error = result.ok ? "" : "the fit failed: " + result.error;
+  rec.lphi_m = result.lphi_m;
+  rec.lphi_err_m = result.lphi_err_m;
+  // The fit has no point errors (the covariance is scaled by its own
+  // residuals). Its quality is judged against the noise of the points,
+  // estimated without a model (conductance::point_noise_s): chi2_red here is
+  // the residual variance over that noise variance, dimensionless, about 1
+  // when the model describes the sweep.
+  const double noise_s = conductance::point_noise_s(prepared.points);
+  const bool noise_known = result.ok && noise_s > 0.0;
+  fit::SweepFitResult judged = result;
+  // fit_sweep's residuals are in units of e^2/(pi h) (sweep_fit.hpp).
+  const double noise_units = noise_s / si::wl_conductance_s;
+  if (noise_known) judged.chi2_red = result.chi2_red / (noise_units * noise_units);
+  rec.chi2_red = judged.chi2_red;
+  rec.converged = result.converged;
+  for (fit::Flag f : result.flags) rec.flags.emplace_back(fit::flag_name(f));
+  // sigma(0): the robust estimate from the innermost points, corrected by
+  // the fitted offset (Delta sigma = sigma(B) - estimate; the model is 0 at
+  // B = 0, so sigma(0) = estimate + offset). The innermost points' a + cB^2
+  // form is biased when B_phi is below their field span; the model is not.
+  if (result.ok && options.fit_offset && std::isfinite(result.offset_s) &&
+      std::isfinite(result.offset_err_s) && result.offset_err_s > 0.0) {
+    rec.sigma0_s = prepared.sigma0_s + result.offset_s;
+    rec.sigma0_err_s = result.offset_err_s;
+  }
+  rec.result = sweep_fit_json(result, prepared);
+  // chi2_red: against the estimated noise (null when it is unknown);
+  // chi2_red_quantum: fit_sweep's own, in (e^2/(pi h))^2.
+  rec.result["chi2_red"] = noise_known ? nlohmann::json(judged.chi2_red) : nlohmann::json(nullptr);
+  rec.result["chi2_red_quantum"] = result.ok ? nlohmann::json(result.chi2_red) : nlohmann::json(nullptr);
+  rec.result["point_noise_s"] = noise_known ? nlohmann::json(noise_s) : nlohmann::json(nullptr);
+  rec.result["sigma_zero_s"] = rec.sigma0_s ? nlohmann::json(*rec.sigma0_s) : nlohmann::json(nullptr);
+  rec.result["sigma_zero_err_s"] = rec.sigma0_err_s ? nlohmann::json(*rec.sigma0_err_s) : nlohmann::json(nullptr);
+  if (!result.ok) rec.result["error"] = rec.error;
+  const auto q = checks::fit_quality(judged, noise_known, settings_.quality);
+  rec.quality = q.reasons;
+  rec.used_in_dephasing = q.usable_for_dephasing && std::isfinite(rec.lphi_m) && rec.lphi_m > 0.0;
+  return rec;
+}
+
+void SamplePipeline::fit_and_record(std::vector<const segment::Sweep*> sweeps, PipelineOutput& out) {
+  const SweepRecord last = describe(*sweeps.back());
+  segment::TemperatureStats temperature;
+  bool unstable = false;
+  for (const auto* s : sweeps) {
+    temperature = combine(temperature, s->temperature);
+    unstable = unstable || s->temperature_unstable;
+  }
+  FitRecord rec;
+  auto stored = stored_.find(last.index);
+  // A stored fit belongs to this sweep only if it ended at the same reading
+  // (settings changed since it was stored would segment differently).
+  if (stored != stored_.end() && stored->second.t_s != last.t_end_s) {
+    stored_.erase(stored);
+    stored = stored_.end();
+  }
+  if (stored != stored_.end()) {
+    rec = std::move(stored->second);
+    stored_.erase(stored);
+    rec.from_store = true;
+    ++fits_reused_;
+  } else {
+    rec = fit_points(sweeps, last);
+    if (unstable) {
+      rec.used_in_dephasing = false;
+      rec.quality.emplace_back("temperature-unstable");
+    }
+  }
+  // What the segmentation says about the sweeps is recomputed, never stored.
+  rec.sweep_index = last.index;
+  rec.combined_with = sweeps.size() > 1 ? std::optional<std::int64_t>(static_cast<std::int64_t>(sweeps.front()->index))
+                                        : std::nullopt;
+  rec.temperature_k = temperature.mean_k;
+  rec.temperature_spread_k = temperature.std_k;
+  rec.temperature_run = last.temperature_run;
+  rec.temperature_unstable = unstable;
+  rec.t_s = last.t_end_s;
+  fits_.push_back(rec);
+  out.fits.push_back(rec);
+  update_zero_field(rec, out);
+  if (!rec.from_store || stored_.empty()) {
+    VerdictRecord v = assess(rec);
+    out.verdicts.push_back(v);
+    last_verdict_ = std::move(v);
+  }
+}
+
+void SamplePipeline::update_zero_field(const FitRecord& fit, PipelineOutput& out) {
+  if (!fit.sigma0_s || fit.temperature_unstable || !std::isfinite(*fit.sigma0_s)) return;
+  auto& p = zero_field_[fit.temperature_run];
+  p.sigma_s.push_back(*fit.sigma0_s);
+  p.sigma_err_s.push_back(fit.sigma0_err_s.value_or(0.0));
+  p.temperature_k.push_back(fit.temperature_k);
+  p.t_s = fit.t_s;
+  ZeroFieldRecord r;
+  r.temperature_run = fit.temperature_run;
+  r.n_sweeps = p.sigma_s.size();
+  r.t_s = p.t_s;
+  const double n = static_cast<double>(r.n_sweeps);
+  double sum = 0.0, sum_err = 0.0, sum_t = 0.0;
+  for (std::size_t i = 0; i < r.n_sweeps; ++i) {
+    sum += p.sigma_s[i];
+    sum_err += p.sigma_err_s[i];
+    sum_t += p.temperature_k[i];
+  }
+  r.sigma_s = sum / n;
+  r.temperature_k = sum_t / n;
+  // The error of a mean of n estimates: their mean error / sqrt(n), or their
+  // scatter / sqrt(n) when that is larger (the sweeps disagree beyond their
+  // own errors, e.g. a slow drift of the plateau).
+  double scatter = 0.0;
+  if (r.n_sweeps > 1) {
+    double ss = 0.0;
+    for (double s : p.sigma_s) ss += (s - r.sigma_s) * (s - r.sigma_s);
+    scatter = std::sqrt(ss / (n - 1.0));
+  }
+  r.sigma_err_s = std::max(sum_err / n, scatter) / std::sqrt(n);
+  out.zero_field.push_back(r);
+}
+
+VerdictRecord SamplePipeline::assess(const FitRecord& trigger) const {
+  const int dimension = model_dimension(settings_.model);
+  std::vector<dephasing::LphiPoint> points;
+  std::vector<double> alphas;
+  double sum_rsq = 0.0;
+  std::size_t n_rsq = 0;
+  const FitRecord* coldest = nullptr;
+  for (const auto& f : fits_) {
+    if (!f.used_in_dephasing) continue;
+    points.push_back({f.temperature_k, f.lphi_m, f.lphi_err_m});
+    if (f.sigma0_s && *f.sigma0_s > 0.0) {
+      sum_rsq += 1.0 / *f.sigma0_s;
+      ++n_rsq;
+    }
+    const auto alpha = f.result.find("alpha");
+    if (alpha != f.result.end() && alpha->is_number() &&
+        std::find(f.flags.begin(), f.flags.end(), "alpha-held") == f.flags.end()) {
+      alphas.push_back(alpha->get<double>());
+    }
+    if (coldest == nullptr || f.temperature_k < coldest->temperature_k) coldest = &f;
+  }
+  dephasing::DephasingOptions dopt;
+  dopt.dimension = dimension;
+  dopt.diffusion_m2s = settings_.diffusion_m2s;
+  if (n_rsq > 0) {
+    const double rsq = sum_rsq / static_cast<double>(n_rsq);
+    if (dimension == 2) dopt.sheet_resistance_ohm = rsq;
+    if (dimension == 1 && settings_.geometry.width_m > 0.0) {
+      dopt.resistance_per_length_ohm_m = rsq / settings_.geometry.width_m;
+    }
+  }
+  const dephasing::DephasingResult d = dephasing::fit_dephasing(points, dopt);
+
+  std::vector<thermometry::ZeroFieldPoint> sigma0;
+  for (const auto& [run, p] : zero_field_) {
+    const double n = static_cast<double>(p.sigma_s.size());
+    double sum = 0.0, sum_t = 0.0, sum_err = 0.0, ss = 0.0;
+    for (std::size_t i = 0; i < p.sigma_s.size(); ++i) {
+      sum += p.sigma_s[i];
+      sum_t += p.temperature_k[i];
+      sum_err += p.sigma_err_s[i];
+    }
+    const double mean = sum / n;
+    for (double s : p.sigma_s) ss += (s - mean) * (s - mean);
+    const double scatter = p.sigma_s.size() > 1 ? std::sqrt(ss / (n - 1.0)) : 0.0;
+    sigma0.push_back({sum_t / n, mean, std::max(sum_err / n, scatter) / std::sqrt(n)});
+  }
+  verdict::VerdictOptions vopt;
+  vopt.dimension = dimension;
+  if (settings_.alpha_fixed) {
+    vopt.alpha = *settings_.alpha_fixed;
+  } else if (settings_.model == mc::Model::hln2d && !alphas.empty()) {
+    vopt.alpha = median(alphas);
+  } else if (settings_.model == mc::Model::hln2d_so) {
+    vopt.alpha = -0.5;  // strong spin-orbit scattering: antilocalization prefactor
+  }
+  const verdict::Verdict v = verdict::assess(d, sigma0, vopt);
+
+  VerdictRecord r;
+  r.sweep_index = trigger.sweep_index;
+  r.t_s = trigger.t_s;
+  r.state = std::string(dephasing::state_name(v.state));
+  r.electrons_cooling = v.electrons_cooling;
+  if (v.likely_cause) r.likely_cause = std::string(verdict::cause_name(*v.likely_cause));
+  r.exponent_p = d.exponent_p;
+  r.lphi_sat_m = d.lphi_sat_m;
+  r.t_sat_k = d.t_sat_k;
+  r.n_points = points.size();
+  r.aak_ratio = d.aak_ratio;
+  if (coldest != nullptr) {
+    const auto regime = checks::dimensional_regime(coldest->lphi_m, settings_.geometry.width_m,
+                                                   settings_.geometry.thickness_m, settings_.model,
+                                                   settings_.diffusion_m2s.value_or(0.0),
+                                                   coldest->temperature_k);
+    if (regime.error.empty()) r.regime = std::string(checks::regime_name(regime.regime));
+  }
+  nlohmann::json j = dephasing_json(d);
+  j["state"] = r.state;  // the verdict's state (it equals the dephasing fit's)
+  j["electrons_cooling"] = optional_bool_json(r.electrons_cooling);
+  j["likely_cause"] = r.likely_cause ? nlohmann::json(*r.likely_cause) : nlohmann::json(nullptr);
+  j["regime"] = r.regime ? nlohmann::json(*r.regime) : nlohmann::json(nullptr);
+  j["updated_at"] = r.t_s;
+  j["sweep_index"] = r.sweep_index;
+  j["n_fits"] = fits_.size();
+  j["n_zero_field_points"] = sigma0.size();
+  const auto& e = v.evidence;
+  j["evidence"] = {{"t_sat_k", optional_json(e.t_sat_k)},
+                   {"t_sat_err_k", optional_json(e.t_sat_err_k)},
+                   {"t_floor_k", optional_json(e.t_floor_k)},
+                   {"t_floor_err_k", optional_json(e.t_floor_err_k)},
+                   {"floor_over_sat", optional_json(e.floor_over_sat)},
+                   {"thermometer_t_min_k", optional_json(e.thermometer_t_min_k)},
+                   {"interaction_slope_kappa", optional_json(e.interaction_slope_kappa)},
+                   {"interaction_slope_kappa_err", optional_json(e.interaction_slope_kappa_err)},
+                   {"departure_p_value", optional_json(e.departure_p_value)},
+                   {"weak_localization_removed", e.weak_localization_removed},
+                   {"verdict_alpha", vopt.alpha}};
+  j["verdict_notes"] = v.notes;
+  if (!v.error.empty()) j["verdict_error"] = v.error;
+  r.json = std::move(j);
+  return r;
+}
+
+}  // namespace lphi::live
