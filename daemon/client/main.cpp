@@ -10,6 +10,7 @@
 #include "daemon/client/commands.hpp"
 #include "daemon/client/daemon_commands.hpp"
 #include "daemon/client/exit_codes.hpp"
+#include "daemon/client/live_commands.hpp"
 
 #ifndef LPHI_VERSION
 #error "LPHI_VERSION must be defined by the build (the project's version)"
@@ -19,7 +20,8 @@ int main(int argc, char** argv) {
   namespace client = lphi::client;
   CLI::App app{
       "lphi: the phase-coherence length from weak-localization magnetoconductance.\n"
-      "Offline: fit a sweep, fit L_phi(T), make synthetic data. With lphid: send, export, status."};
+      "Offline: fit a sweep, fit L_phi(T), make synthetic data. With lphid: send, export, status,\n"
+      "sweeps, fits, verdict, alerts, ack, watch, replay."};
   app.set_version_flag("--version", std::string("lphi ") + LPHI_VERSION);
   app.require_subcommand(1);
 
@@ -28,6 +30,7 @@ int main(int argc, char** argv) {
   client::register_dephasing_command(app, &exit_code);
   client::register_synth_commands(app, &exit_code);
   client::register_daemon_commands(app, &exit_code);
+  client::register_live_commands(app, &exit_code);
 
   try {
     app.parse(argc, argv);

@@ -561,7 +561,9 @@ json IngestServer::status() const {
               {"rate_per_s", s->rate.rate_per_s()}};
     j["highest_seq"] = s->durable_seq ? json(*s->durable_seq) : json(nullptr);
     j["last_t"] = s->last_t ? json(*s->last_t) : json(nullptr);
-    j["age_s"] = s->last_t ? json(now - *s->last_t) : json(nullptr);
+    // Wall seconds since a reading last arrived: the readings' own t may run
+    // ahead of this clock (an accelerated simulated instrument) or behind it.
+    j["age_s"] = s->last_arrival_unix > 0.0 ? json(now - s->last_arrival_unix) : json(nullptr);
     j["last_arrival_unix"] = s->last_arrival_unix > 0.0 ? json(s->last_arrival_unix) : json(nullptr);
     if (!s->instrument_identity.empty()) j["identity"] = s->instrument_identity;
     sources.push_back(std::move(j));

@@ -1,0 +1,240 @@
+#include "daemon/client/live_format.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <ctime>
+
+#include "daemon/client/format.hpp"
+
+namespace lphi::client {
+
+using nlohmann::json;
+
+namespace {
+
+const std::string dash = "-";
+
+std::string text_at(const json& object, std::string_view key) {
+  if (!object.is_object()) return dash;
+  const auto it = object.find(key);
+  if (it == object.end() || it->is_null()) return dash;
+  if (it->is_string()) return it->get<std::string>();
+  if (it->is_boolean()) return it->get<bool>() ? "yes" : "no";
+  if (it->is_number_integer()) return std::to_string(it->get<long long>());
+  if (it->is_number()) return format_number(it->get<double>(), 4);
+  return it->dump();
+}
+
+bool flag_at(const json& object, std::string_view key) {
+  if (!object.is_object()) return false;
+  const auto it = object.find(key);
+  return it != object.end() && it->is_boolean() && it->get<bool>();
+}
+
+std::string length_at(const json& object, std::string_view key, std::string_view err_key) {
+  const auto v = number_at(object, key);
+  if (!v) return dash;
+  return format_length(*v, number_at(object, err_key));
+}
+
+std::string temperature_at(const json& object, std::string_view key, std::string_view err_key = {}) {
+  const auto v = number_at(object, key);
+  if (!v) return dash;
+  return format_temperature(*v, err_key.empty() ? std::nullopt : number_at(object, err_key));
+}
+
+std::string time_at(const json& object, std::string_view key) {
+  const auto v = number_at(object, key);
+  return v ? format_utc(*v) : dash;
+}
+
+std::string value_with_error(const json& object, std::string_view key, std::string_view err_key) {
+  const auto v = number_at(object, key);
+  if (!v) return dash;
+  return format_with_error(*v, number_at(object, err_key), "");
+}
+
+std::string trimmed(std::string s) {
+  while (!s.empty() && s.back() == ' ') s.pop_back();
+  return s;
+}
+
+}  // namespace
+
+std::string format_utc(double unix_s) {
+  // Years 1..9999 keep the ISO-8601 form four digits wide.
+  if (!std::isfinite(unix_s) || unix_s < -62135596800.0 || unix_s >= 253402300800.0) return dash;
+  const auto whole = static_cast<std::time_t>(std::floor(unix_s));
+  std::tm tm{};
+  if (gmtime_r(&whole, &tm) == nullptr) return dash;
+  char buffer[32];
+  if (std::strftime(buffer, sizeof buffer, "%Y-%m-%dT%H:%M:%SZ", &tm) == 0) return dash;
+  return buffer;
+}
+
+std::string format_temperature(double temperature_k, std::optional<double> error_k) {
+  if (std::isfinite(temperature_k) && std::fabs(temperature_k) < 1.0) {
+    return format_temperature_mk(temperature_k, error_k);
+  }
+  return format_with_error(temperature_k, error_k, "K");
+}
+
+std::optional<double> number_at(const json& object, std::string_view key) {
+  if (!object.is_object()) return std::nullopt;
+  const auto it = object.find(key);
+  if (it == object.end() || !it->is_number()) return std::nullopt;
+  const double v = it->get<double>();
+  if (!std::isfinite(v)) return std::nullopt;
+  return v;
+}
+
+ColumnTable::ColumnTable(std::vector<std::string> header) : header_(std::move(header)) {}
+
+void ColumnTable::add(std::vector<std::string> row) {
+  row.resize(header_.size());
+  rows_.push_back(std::move(row));
+}
+
+void ColumnTable::print(std::ostream& out) const {
+  std::vector<std::size_t> width(header_.size(), 0);
+  for (std::size_t c = 0; c < header_.size(); ++c) width[c] = header_[c].size();
+  for (const auto& row : rows_) {
+    for (std::size_t c = 0; c < row.size(); ++c) width[c] = std::max(width[c], row[c].size());
+  }
+  auto line = [&](const std::vector<std::string>& cells) {
+    std::string text;
+    for (std::size_t c = 0; c < cells.size(); ++c) {
+      text += cells[c];
+      if (c + 1 < cells.size()) text += std::string(width[c] - cells[c].size() + 2, ' ');
+    }
+    out << trimmed(std::move(text)) << '\n';
+  };
+  line(header_);
+  for (const auto& row : rows_) line(row);
+}
+
+void print_sweeps_table(const json& sweeps, std::ostream& out) {
+  ColumnTable table({"sample", "sweep", "dir", "start (UTC)", "length", "field", "points", "T", "T spread",
+                     "fitted", "notes"});
+  for (const auto& s : sweeps) {
+    std::string field = dash;
+    if (const auto lo = number_at(s, "field_min_t"), hi = number_at(s, "field_max_t"); lo && hi) {
+      field = format_number(*lo * 1e3, 4) + " .. " + format_field_mt(*hi);
+    }
+    std::string length = dash;
+    if (const auto a = number_at(s, "t_start"), b = number_at(s, "t_end"); a && b) {
+      length = format_number(*b - *a, 4) + " s";
+    }
+    std::string notes;
+    auto note = [&](const std::string& n) { notes += (notes.empty() ? "" : ", ") + n; };
+    if (flag_at(s, "temperature_unstable")) note("T unstable");
+    if (flag_at(s, "truncated")) note("truncated");
+    if (const auto n = number_at(s, "n_overload"); n && *n > 0) note(format_number(*n, 10) + " overloaded");
+    table.add({text_at(s, "sample"), text_at(s, "index"), text_at(s, "direction"), time_at(s, "t_start"), length,
+               field, text_at(s, "n_points"), temperature_at(s, "temperature_k"),
+               temperature_at(s, "temperature_spread_k"), text_at(s, "fitted"), notes.empty() ? dash : notes});
+  }
+  table.print(out);
+}
+
+void print_fits_table(const json& fits, std::ostream& out) {
+  ColumnTable table({"sample", "sweep", "T", "L_phi", "alpha", "L_so", "chi2_red", "points", "window", "used",
+                     "notes"});
+  for (const auto& f : fits) {
+    std::string notes;
+    auto note = [&](const std::string& n) { notes += (notes.empty() ? "" : "; ") + n; };
+    if (f.is_object() && f.contains("ok") && f["ok"].is_boolean() && !f["ok"].get<bool>()) {
+      note("failed: " + text_at(f, "error"));
+    }
+    if (f.is_object() && f.contains("converged") && f["converged"].is_boolean() && !f["converged"].get<bool>()) {
+      note("not converged");
+    }
+    if (f.is_object() && f.contains("combined_with") && f["combined_with"].is_number()) {
+      note("with sweep " + text_at(f, "combined_with"));
+    }
+    if (f.is_object() && f.contains("flags") && f["flags"].is_array()) {
+      for (const auto& flag : f["flags"]) {
+        if (flag.is_string()) note(flag.get<std::string>());
+      }
+    }
+    const auto window = number_at(f, "field_window_t");
+    table.add({text_at(f, "sample"), text_at(f, "sweep_index"), temperature_at(f, "temperature_k"),
+               length_at(f, "lphi_m", "lphi_err_m"), value_with_error(f, "alpha", "alpha_err"),
+               length_at(f, "lso_m", "lso_err_m"), text_at(f, "chi2_red"), text_at(f, "n_points"),
+               window ? format_field_mt(*window) : dash, text_at(f, "used_in_dephasing"),
+               notes.empty() ? dash : notes});
+  }
+  table.print(out);
+}
+
+void print_verdicts(const json& verdicts, std::ostream& out) {
+  bool first = true;
+  for (const auto& v : verdicts) {
+    if (!first) out << '\n';
+    first = false;
+    out << text_at(v, "sample") << ": " << text_at(v, "state") << '\n';
+    TextTable table;
+    table.add("exponent p", value_with_error(v, "exponent_p", "exponent_p_err"));
+    table.add("L_phi saturation", length_at(v, "lphi_sat_m", "lphi_sat_err_m"));
+    table.add("T_sat", temperature_at(v, "t_sat_k", "t_sat_err_k"));
+    table.add("electrons cooling", text_at(v, "electrons_cooling"));
+    table.add("likely cause", text_at(v, "likely_cause"));
+    table.add("regime", text_at(v, "regime"));
+    table.add("AAK ratio", value_with_error(v, "aak_ratio", "aak_ratio_err"));
+    table.add("temperatures used", text_at(v, "n_points"));
+    table.add("updated (UTC)", time_at(v, "updated_at"));
+    table.print(out);
+  }
+}
+
+void print_alerts_table(const json& alerts, std::ostream& out) {
+  ColumnTable table({"id", "severity", "state", "rule", "subject", "raised (UTC)", "message"});
+  for (const auto& a : alerts) {
+    std::string subject = text_at(a, "subject");
+    if (subject.empty()) subject = dash;
+    table.add({text_at(a, "id"), text_at(a, "severity"), text_at(a, "state"), text_at(a, "rule"), subject,
+               time_at(a, "raised_at"), text_at(a, "message")});
+  }
+  table.print(out);
+}
+
+std::string event_line(std::string_view topic, const json& body) {
+  std::string line(topic);
+  line += ' ';
+  if (topic == "sweep") {
+    line += text_at(body, "sample") + " sweep " + text_at(body, "index") + " (" + text_at(body, "direction") +
+            ") ended " + time_at(body, "t_end") + ", " + text_at(body, "n_points") + " points at " +
+            temperature_at(body, "temperature_k");
+    if (flag_at(body, "temperature_unstable")) line += ", T unstable";
+  } else if (topic == "fit") {
+    line += text_at(body, "sample") + " sweep " + text_at(body, "sweep_index") + " at " +
+            temperature_at(body, "temperature_k") + ": ";
+    if (body.is_object() && body.contains("ok") && body["ok"].is_boolean() && !body["ok"].get<bool>()) {
+      line += "failed: " + text_at(body, "error");
+    } else {
+      line += "L_phi " + length_at(body, "lphi_m", "lphi_err_m") + ", alpha " +
+              value_with_error(body, "alpha", "alpha_err") + ", chi2_red " + text_at(body, "chi2_red");
+    }
+  } else if (topic == "verdict") {
+    line += text_at(body, "sample") + " " + text_at(body, "state") + ", p " +
+            value_with_error(body, "exponent_p", "exponent_p_err") + ", T_sat " +
+            temperature_at(body, "t_sat_k", "t_sat_err_k") + ", electrons cooling " +
+            text_at(body, "electrons_cooling");
+    if (number_at(body, "lphi_sat_m")) line += ", L_sat " + length_at(body, "lphi_sat_m", "lphi_sat_err_m");
+    if (body.is_object() && body.contains("likely_cause") && body["likely_cause"].is_string()) {
+      line += ", likely cause " + text_at(body, "likely_cause");
+    }
+  } else if (topic == "alert") {
+    line += "#" + text_at(body, "id") + " " + text_at(body, "severity") + " " + text_at(body, "state") + " " +
+            text_at(body, "rule");
+    const std::string subject = text_at(body, "subject");
+    if (!subject.empty() && subject != dash) line += " [" + subject + "]";
+    line += ": " + text_at(body, "message");
+  } else {
+    line += body.dump();
+  }
+  return line;
+}
+
+}  // namespace lphi::client
