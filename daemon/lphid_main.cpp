@@ -182,6 +182,7 @@ int serve(const std::string& dir_option, const std::string& config_option, const
   }
   lphi::live::LiveOptions lo;
   lo.data_dir = dir;
+  lo.writer = writer.get();
   std::unique_ptr<lphi::live::LiveAnalysis> live;
   if (auto s = lphi::live::LiveAnalysis::create(config, lo, engine.get(), events.get(), live); !s) {
     return fail(s.message);

@@ -6,6 +6,7 @@
 #include <cmath>
 #include <condition_variable>
 #include <deque>
+#include <future>
 #include <limits>
 #include <map>
 #include <mutex>
@@ -14,11 +15,16 @@
 #include <thread>
 
 #include "daemon/alerts/alert_engine.hpp"
+#include "daemon/store/writer.hpp"
 #include "daemon/alerts/event_publisher.hpp"
 #include "daemon/live/result_json.hpp"
 #include "daemon/protocol/codec.hpp"
 
 namespace lphi::live {
+
+namespace {
+constexpr std::string_view writer_stopping = "the store writer is stopping";
+}  // namespace
 
 using nlohmann::json;
 using protocol::Reason;
@@ -135,6 +141,7 @@ struct LiveAnalysis::Worker {
   std::string source_name[3];
   LiveOptions options;
   alerts::AlertEngine* engine = nullptr;
+  store::StoreWriter* writer = nullptr;
   alerts::EventPublisher* events = nullptr;
   const std::atomic<bool>* stopping = nullptr;
 
@@ -162,6 +169,7 @@ struct LiveAnalysis::Worker {
   bool refill(int stream);
   bool push_merged();
   store::Status write(const PipelineOutput& out);
+  store::Status write_records(store::Database& db, const PipelineOutput& out);
   void publish(const PipelineOutput& out);
   json sweep_json(const SweepRecord& s, std::int64_t sweep_id) const;
   json fit_json(const FitRecord& f, std::int64_t sweep_id, double t_start) const;
@@ -358,18 +366,16 @@ json LiveAnalysis::Worker::fit_json(const FitRecord& f, std::int64_t sweep_id, d
   return j;
 }
 
-store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
-  if (out.sweeps.empty() && out.fits.empty() && out.verdicts.empty()) return store::Status::success();
-  if (auto s = write_db.exec("BEGIN IMMEDIATE"); !s) return s;
+// The records of one step, on `db` inside a transaction the caller owns.
+store::Status LiveAnalysis::Worker::write_records(store::Database& db, const PipelineOutput& out) {
   auto fail = [&](const std::string& doing) {
-    auto s = write_db.error(doing);
-    (void)write_db.exec("ROLLBACK");
+    auto s = db.error(doing);
     return s;
   };
   store::Statement st;
   if (!out.sweeps.empty()) {
     if (!store::Statement::prepare(
-             write_db,
+             db,
              // An upsert keeps the row's id (fits refer to it); a sweep found
              // again after a restart is rewritten with what it is now.
              "INSERT INTO sweeps (sample_id, sweep_index, direction, t_start, t_end, field_min_t,"
@@ -390,7 +396,7 @@ store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
       return fail("preparing the sweep insert");
     }
     store::Statement id;
-    if (!store::Statement::prepare(write_db, "SELECT id FROM sweeps WHERE sample_id = ?1 AND sweep_index = ?2", id)) {
+    if (!store::Statement::prepare(db, "SELECT id FROM sweeps WHERE sample_id = ?1 AND sweep_index = ?2", id)) {
       return fail("preparing the sweep lookup");
     }
     for (const auto& s : out.sweeps) {
@@ -428,7 +434,7 @@ store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
   for (const auto& f : out.fits) new_fits = new_fits || !f.from_store;
   if (new_fits) {
     if (!store::Statement::prepare(
-             write_db,
+             db,
              "INSERT OR REPLACE INTO fits (sweep_id, sample_id, combined_with, ok, error, model, lphi_m, lphi_err_m,"
              " chi2_red, converged, flags_json, temperature_k, temperature_spread_k, sigma0_s, sigma0_err_s,"
              " used_in_dephasing, quality_json, result_json, t)"
@@ -467,7 +473,7 @@ store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
   }
   if (!out.zero_field.empty()) {
     if (!store::Statement::prepare(
-             write_db,
+             db,
              "INSERT OR REPLACE INTO zero_field_points (sample_id, temperature_run, temperature_k, sigma_s,"
              " sigma_err_s, n_sweeps, t) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
              st)) {
@@ -487,7 +493,7 @@ store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
   }
   if (!out.verdicts.empty()) {
     if (!store::Statement::prepare(
-             write_db,
+             db,
              "INSERT OR REPLACE INTO verdicts (sample_id, sweep_index, t, state, electrons_cooling, likely_cause,"
              " exponent_p, lphi_sat_m, t_sat_k, n_points, verdict_json)"
              " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)",
@@ -518,11 +524,34 @@ store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
       if (st.step() != SQLITE_DONE) return fail("storing the verdict");
     }
   }
-  if (auto s = write_db.exec("COMMIT"); !s) {
-    (void)write_db.exec("ROLLBACK");
-    return s;
-  }
   return store::Status::success();
+}
+
+store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
+  if (out.sweeps.empty() && out.fits.empty() && out.verdicts.empty()) return store::Status::success();
+  if (writer == nullptr) {  // no store writer (a test of this class alone): our own transaction
+    if (auto s = write_db.exec("BEGIN IMMEDIATE"); !s) return s;
+    if (auto s = write_records(write_db, out); !s) {
+      (void)write_db.exec("ROLLBACK");
+      return s;
+    }
+    if (auto s = write_db.exec("COMMIT"); !s) {
+      (void)write_db.exec("ROLLBACK");
+      return s;
+    }
+    return store::Status::success();
+  }
+  // Through the store's writer thread, in order with the readings, and wait
+  // until it is durable: the records must be stored before they are
+  // published. The writer takes a task whenever it runs (tasks hold no
+  // readings); it refuses only when it is stopping.
+  std::promise<store::Status> done;
+  auto durable = done.get_future();
+  store::WriteJob job;
+  job.task = [this, &out](store::Database& db) { return write_records(db, out); };
+  job.on_durable = [&done](const store::WriteResult& r) { done.set_value(r.status); };
+  if (!writer->try_submit(job)) return store::Status::failure(std::string(writer_stopping));
+  return durable.get();
 }
 
 void LiveAnalysis::Worker::publish(const PipelineOutput& out) {
@@ -612,6 +641,12 @@ void LiveAnalysis::Worker::run() {
       out.clear();
       pipeline->process(out, 1);
       if (auto s = write(out); !s) {
+        if (s.message == writer_stopping) {
+          // lphid is shutting down (the writer stops before the analysis):
+          // these records are not stored, and the next start refits them.
+          spdlog::info("sample {}: {}; the last records are left for the next start", config.name, s.message);
+          break;
+        }
         // Going on would lose these records for good (the next start would
         // find the sweep without its fit): stop this sample's analysis, say so.
         spdlog::error("sample {}: {}; its analysis stops until lphid restarts", config.name, s.message);
@@ -650,6 +685,7 @@ store::Status LiveAnalysis::create(const config::Config& config, const LiveOptio
     w->settings = sample_settings(sample);
     w->options = options;
     w->engine = engine;
+    w->writer = options.writer;
     w->events = events;
     w->stopping = &a->stopping_;
     w->lag_allowance_s = w->settings.aligner.max_hold_s -

@@ -48,10 +48,18 @@ class AlertEngine;
 class EventPublisher;
 }  // namespace lphi::alerts
 
+namespace lphi::store {
+class StoreWriter;
+}  // namespace lphi::store
+
 namespace lphi::live {
 
 struct LiveOptions {
   std::string data_dir;                  // for the database and the disk-space check
+  // The store's writer: the analysis records are written by its thread, in
+  // order with the readings (one writer of the database). Null: each sample
+  // writes on its own connection (only where nothing else writes).
+  store::StoreWriter* writer = nullptr;
   std::size_t chunk_readings = 4000;     // per query, per stream
   std::chrono::milliseconds poll_interval{100};  // when every stream is caught up
 };

@@ -240,6 +240,15 @@ bool StoreWriter::insert(std::int64_t source_id, const protocol::FieldReading& r
 }
 
 Status StoreWriter::write(const WriteJob& job, WriteResult& result) {
+  if (job.task) {
+    if (auto s = db_.exec("SAVEPOINT lphi_task"); !s) return s;
+    Status task_status = job.task(db_);
+    if (!task_status) {
+      result.status = std::move(task_status);
+      if (auto s = db_.exec("ROLLBACK TO lphi_task"); !s) return s;
+    }
+    return db_.exec("RELEASE lphi_task");
+  }
   auto found = sources_.find(job.source_id);
   if (found == sources_.end()) {
     return Status::failure("source id " + std::to_string(job.source_id) + " is not registered");

@@ -67,6 +67,15 @@ struct WriteJob {
   protocol::Readings readings;  // may be empty (a job that only records an identity)
   std::function<void(const WriteResult&)> on_durable;  // runs on the writer thread
   std::optional<InstrumentIdentity> identity{};  // recorded in instrument_identities
+  // A job of another writer of the database (the live analysis): when set,
+  // source_id, readings and identity are ignored and the writer thread runs
+  // task(db) inside its own transaction, in a SAVEPOINT, in queue order with
+  // the readings. A task that fails is rolled back to its savepoint alone
+  // (the readings of the same transaction stay) and on_durable gets its
+  // status; one that succeeds is durable when on_durable runs. So the
+  // database keeps one writer, and a busy store can never starve the
+  // analysis of the write lock.
+  std::function<Status(Database&)> task{};
 };
 
 struct SourceState {

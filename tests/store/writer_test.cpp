@@ -275,3 +275,70 @@ TEST(StoreWriter, ReadOnlyConnectionsCannotWrite) {
 
 }  // namespace
 }  // namespace lphi::store
+
+namespace lphi::store {
+namespace {
+
+// A task (another part of lphid writing through the one writer thread) runs
+// in queue order with the readings: it sees every reading submitted before
+// it. What it writes is durable when its callback runs (read back here on a
+// separate read-only connection), and a task that fails is rolled back alone
+// with its error reported, while readings committed in the same transaction
+// stay (SQLite SAVEPOINT semantics, https://sqlite.org/lang_savepoint.html).
+TEST(StoreWriter, TasksRunInOrderWithReadingsAndFailAlone) {
+  Fixture f;
+  Results results;
+  WriteJob first{f.lockin.id, lockin_run(0, 500), results.callback()};
+  ASSERT_TRUE(f.writer->try_submit(first));
+
+  std::int64_t seen_by_task = -1;
+  WriteJob counting;
+  counting.task = [&seen_by_task](Database& db) {
+    Statement st;
+    if (auto s = Statement::prepare(db, "SELECT count(*) FROM lockin_readings", st); !s) return s;
+    if (st.step() != SQLITE_ROW) return db.error("counting");
+    seen_by_task = st.column_int(0);
+    // A note that must survive: a sample row, as the live analysis would
+    // write its own records.
+    return db.exec(
+        "INSERT INTO samples (name, model, squares, width_m, thickness_m, excitation_a, lockin_source,"
+        " thermometer_source, field_source) VALUES ('film-t', 'hln2d', 1, 1e-4, 1e-8, 1e-8, 'a', 'b', 'c')");
+  };
+  counting.on_durable = results.callback();
+  ASSERT_TRUE(f.writer->try_submit(counting));
+
+  WriteJob failing;
+  failing.task = [](Database& db) {
+    if (auto s = db.exec("INSERT INTO samples (name, model, squares, width_m, thickness_m, excitation_a,"
+                         " lockin_source, thermometer_source, field_source)"
+                         " VALUES ('film-u', 'hln2d', 1, 1e-4, 1e-8, 1e-8, 'a', 'b', 'c')");
+        !s)
+      return s;
+    return db.exec("INSERT INTO no_such_table VALUES (1)");  // fails: the row above must go too
+  };
+  failing.on_durable = results.callback();
+  ASSERT_TRUE(f.writer->try_submit(failing));
+  WriteJob after{f.lockin.id, lockin_run(500, 500), results.callback()};
+  ASSERT_TRUE(f.writer->try_submit(after));
+  ASSERT_TRUE(results.wait_for(4));
+
+  EXPECT_TRUE(results.done[0].status.ok);
+  EXPECT_TRUE(results.done[1].status.ok) << results.done[1].status.message;
+  EXPECT_FALSE(results.done[2].status.ok);
+  EXPECT_NE(results.done[2].status.message.find("no_such_table"), std::string::npos)
+      << results.done[2].status.message;
+  EXPECT_TRUE(results.done[3].status.ok);
+  EXPECT_EQ(seen_by_task, 500);
+  EXPECT_EQ(f.stored_lockin().size(), 1000u);
+
+  StoreReader reader;
+  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok);
+  Statement names;
+  ASSERT_TRUE(Statement::prepare(reader.database(), "SELECT name FROM samples ORDER BY name", names).ok);
+  std::vector<std::string> got;
+  while (names.step() == SQLITE_ROW) got.push_back(names.column_text(0));
+  EXPECT_EQ(got, std::vector<std::string>{"film-t"});
+}
+
+}  // namespace
+}  // namespace lphi::store
