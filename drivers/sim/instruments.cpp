@@ -176,7 +176,7 @@ std::optional<std::string> SimInstrument::run_lockin(const scpi::Request& r, dou
   if (r.query && matches("STATus:OVLD", r) && no_args(r, error, failed))
     return world_->lockin(t_s, time_constant_s_, range_v_).overload ? "1" : "0";
   if (matches("SENSe:RANGe", r)) {
-    if (r.query) return no_args(r, error, failed) ? std::optional(format_number(range_v_)) : std::nullopt;
+    if (r.query) return no_args(r, error, failed) ? std::optional(format_number(world_->lockin_range_v(t_s, range_v_))) : std::nullopt;
     if (auto v = one_number(r, error, failed)) {
       if (auto step = round_up(kRanges, *v); step && *v > 0) range_v_ = *step;
       else { error = scpi::data_out_of_range(r.args[0]); failed = true; }

@@ -8,6 +8,7 @@
 #include <string>
 
 #include "drivers/sim/instruments.hpp"
+#include "drivers/sim/record_file.hpp"
 #include "drivers/sim/scenario_file.hpp"
 #include "drivers/sim/server.hpp"
 
@@ -35,6 +36,8 @@ int main(int argc, char** argv) {
   long long seed = -1;
   bool list_commands = false;
   std::string epoch_start;
+  std::string record_path;
+  lphi::sim::RecordingOptions recording;
   app.add_option("scenario", scenario_path, "scenario file (TOML)");
   app.add_option("--speed", options.speed, "simulated seconds per wall-clock second (default 1)");
   app.add_option("--seed", seed, "noise seed (default: the scenario's)");
@@ -46,6 +49,13 @@ int main(int argc, char** argv) {
   app.add_option("--epoch-start", epoch_start,
                  "make the instruments' clock read Unix time: T (seconds since the epoch) at the "
                  "start, or \"now\" for the wall-clock time at the start (default: 0, simulated seconds)");
+  app.add_option("--record", record_path,
+                 "do not serve: evaluate the scenario at the lock-in rate and write the CSV that "
+                 "`lphi replay` reads (with --truth, the truth file too)");
+  app.add_option("--rate-hz", recording.rate_hz,
+                 "with --record: lock-in readings per simulated second (default 10)");
+  app.add_option("--thermometer-every", recording.thermometer_every,
+                 "with --record: a thermometer reading on every N-th row (default 1)");
   app.add_flag("--hold", options.hold, "keep serving the last state after the programme ends");
   app.add_flag("--list-commands", list_commands, "print the instruments' command tree and exit");
   CLI11_PARSE(app, argc, argv);
@@ -79,12 +89,41 @@ int main(int argc, char** argv) {
       return 2;
     }
   }
+  if (!record_path.empty()) {
+    if (options.hold || !options.ports_file.empty() || !epoch_start.empty()) {
+      std::fprintf(stderr, "lphi-sim: --record does not serve: --hold, --ports-file and "
+                           "--epoch-start cannot be used with it\n");
+      return 2;
+    }
+    recording.duration_s = options.duration_s;
+    if (auto e = lphi::sim::recording_error(recording); !e.empty()) {
+      std::fprintf(stderr, "lphi-sim: %s\n", e.c_str());
+      return 2;
+    }
+  } else if (app.count("--rate-hz") > 0 || app.count("--thermometer-every") > 0) {
+    std::fprintf(stderr, "lphi-sim: --rate-hz and --thermometer-every need --record\n");
+    return 2;
+  }
   auto loaded = lphi::sim::load_scenario_file(scenario_path);
   if (!loaded.scenario) {
     std::fprintf(stderr, "lphi-sim: %s\n", loaded.error.c_str());
     return 2;
   }
   if (seed >= 0) loaded.scenario->seed = static_cast<std::uint64_t>(seed);
+  if (!record_path.empty()) {
+    lphi::sim::RecordSummary summary;
+    if (auto e = lphi::sim::write_recording(*loaded.scenario, recording, record_path,
+                                            options.truth_path, summary);
+        !e.empty()) {
+      std::fprintf(stderr, "lphi-sim: %s\n", e.c_str());
+      return 1;
+    }
+    std::printf("lphi-sim: recorded %lld rows (%lld with the lock-in, %lld with the thermometer) "
+                "over %.12g simulated s to %s\n",
+                static_cast<long long>(summary.rows), static_cast<long long>(summary.lockin_rows),
+                static_cast<long long>(summary.thermometer_rows), summary.end_s, record_path.c_str());
+    return 0;
+  }
   lphi::sim::SimServer server(std::move(*loaded.scenario), options);
   if (auto e = server.open(); !e.empty()) {
     std::fprintf(stderr, "lphi-sim: %s\n", e.c_str());

@@ -59,6 +59,15 @@ std::string scenario_error(const Scenario& s) {
   for (const auto& w : f.stuck)
     if (!non_negative(w.start_s) || !positive(w.duration_s))
       return "fault thermometer-stuck: start_s >= 0 and duration_s > 0 are needed";
+  for (const auto& r : f.ranges)
+    if (!non_negative(r.start_s) || !positive(r.duration_s) || !positive(r.range_v))
+      return "fault lockin-range: start_s >= 0, duration_s > 0 and range_v > 0 are needed";
+  for (const auto& q : f.pickups)
+    if (!non_negative(q.start_s) || !positive(q.duration_s) || !non_negative(q.fraction))
+      return "fault quadrature-pickup: start_s >= 0, duration_s > 0 and fraction >= 0 are needed";
+  for (const auto& e : f.excursions)
+    if (!non_negative(e.start_s) || !positive(e.duration_s) || !positive(e.amplitude_k))
+      return "fault temperature-excursion: start_s >= 0, duration_s > 0 and amplitude_k > 0 are needed";
   for (const auto& r : f.resets)
     if (!non_negative(r.at_s) || !non_negative(r.period_s))
       return "fault connection-reset: at_s and period_s must be >= 0";

@@ -78,8 +78,25 @@ struct Faults {
     double at_s = 0.0;                  // first reset
     double period_s = 0.0;              // 0: once
   };
+  // The lock-in's input range is turned to range_v (overload when |X| or
+  // |Y| reaches it).
+  struct Range : Window {
+    double range_v = 0.0;
+  };
+  // Capacitive pickup: Y = fraction * X instead of the scenario's fraction.
+  struct Pickup : Window {
+    double fraction = 0.0;
+  };
+  // A heater glitch: the bath (and the electrons with it) warms by
+  // amplitude_k sin^2(pi (t - start_s) / duration_s) during the window.
+  struct Excursion : Window {
+    double amplitude_k = 0.0;
+  };
   std::vector<Dropout> dropouts;
   std::vector<Window> stuck;            // thermometer repeats its reading from start_s
+  std::vector<Range> ranges;
+  std::vector<Pickup> pickups;
+  std::vector<Excursion> excursions;
   std::vector<Reset> resets;
   bool heating = false;                 // electron heating from heating_start_s on
   double heating_start_s = 0.0;

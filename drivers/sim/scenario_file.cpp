@@ -208,9 +208,31 @@ void read_fault(Reader& r, const toml::table& t, Faults& f) {
     r.number(t, "start_s", "fault.", f.heating_start_s);
     r.number(t, "floor_k", "fault.", f.heating_floor_k);
     r.number(t, "exponent", "fault.", f.heating_exponent);
+  } else if (kind == "lockin-range") {
+    r.known_keys(t, "fault.", {"kind", "start_s", "duration_s", "range_v"});
+    Faults::Range w;
+    r.number(t, "start_s", "fault.", w.start_s);
+    r.number(t, "duration_s", "fault.", w.duration_s);
+    r.number(t, "range_v", "fault.", w.range_v);
+    f.ranges.push_back(w);
+  } else if (kind == "quadrature-pickup") {
+    r.known_keys(t, "fault.", {"kind", "start_s", "duration_s", "fraction"});
+    Faults::Pickup w;
+    r.number(t, "start_s", "fault.", w.start_s);
+    r.number(t, "duration_s", "fault.", w.duration_s);
+    r.number(t, "fraction", "fault.", w.fraction);
+    f.pickups.push_back(w);
+  } else if (kind == "temperature-excursion") {
+    r.known_keys(t, "fault.", {"kind", "start_s", "duration_s", "amplitude_k"});
+    Faults::Excursion w;
+    r.number(t, "start_s", "fault.", w.start_s);
+    r.number(t, "duration_s", "fault.", w.duration_s);
+    r.number(t, "amplitude_k", "fault.", w.amplitude_k);
+    f.excursions.push_back(w);
   } else {
-    r.fail(t.source(), "'fault.kind' must be lockin-dropout, thermometer-stuck, connection-reset "
-                       "or electron-heating (got '" + kind + "')");
+    r.fail(t.source(), "'fault.kind' must be lockin-dropout, thermometer-stuck, connection-reset, "
+                       "electron-heating, lockin-range, quadrature-pickup or temperature-excursion "
+                       "(got '" + kind + "')");
   }
 }
 

@@ -87,6 +87,28 @@ bool Magnet::manual_during(double t0_s, double t1_s) const {
 World::World(Scenario s)
     : scenario_(std::move(s)), schedule_(scenario_.programme), magnet_(schedule_) {}
 
+double World::bath_temperature_k(double t_s) const {
+  double t = schedule_.temperature_k(t_s);
+  for (const Faults::Excursion& e : scenario_.faults.excursions) {
+    if (!e.contains(t_s)) continue;
+    const double s = std::sin(std::acos(-1.0) * (t_s - e.start_s) / e.duration_s);
+    t += e.amplitude_k * s * s;
+  }
+  return t;
+}
+
+double World::lockin_range_v(double t_s, double set_range_v) const {
+  for (const Faults::Range& r : scenario_.faults.ranges)
+    if (r.contains(t_s)) return r.range_v;
+  return set_range_v;
+}
+
+double World::quadrature_fraction(double t_s) const {
+  for (const Faults::Pickup& q : scenario_.faults.pickups)
+    if (q.contains(t_s)) return q.fraction;
+  return scenario_.lockin.quadrature_fraction;
+}
+
 bool World::heating_at(double t_s) const {
   return scenario_.faults.heating && t_s >= scenario_.faults.heating_start_s;
 }
@@ -140,9 +162,10 @@ LockinReading World::lockin(double t_s, double time_constant_s, double range_v) 
   }
   LockinReading r;
   r.x_v = x + scenario_.noise.lockin_x_v * standard_normal(NoiseChannel::lockin_x, t_s);
-  r.y_v = scenario_.lockin.quadrature_fraction * x +
+  r.y_v = quadrature_fraction(t_s) * x +
           scenario_.noise.lockin_y_v * standard_normal(NoiseChannel::lockin_y, t_s);
-  r.overload = std::abs(r.x_v) >= range_v || std::abs(r.y_v) >= range_v;
+  const double range = lockin_range_v(t_s, range_v);
+  r.overload = std::abs(r.x_v) >= range || std::abs(r.y_v) >= range;
   return r;
 }
 

@@ -80,7 +80,8 @@ class World {
   Magnet& magnet() { return magnet_; }
   const Magnet& magnet() const { return magnet_; }
 
-  double bath_temperature_k(double t_s) const { return schedule_.temperature_k(t_s); }
+  // The programme's temperature plus any temperature-excursion fault.
+  double bath_temperature_k(double t_s) const;
   double electron_temperature_k(double t_s) const;
   bool heating_at(double t_s) const;
   double sheet_conductance_s(double t_s) const;   // at the magnet's field
@@ -90,6 +91,11 @@ class World {
   // Standard normal for a channel in the noise interval holding t_s.
   double standard_normal(NoiseChannel c, double t_s) const;
 
+  // The input range in effect at t: a lockin-range fault's inside its
+  // window, otherwise the instrument's own setting.
+  double lockin_range_v(double t_s, double set_range_v) const;
+  double quadrature_fraction(double t_s) const;   // a quadrature-pickup fault's, else the scenario's
+  // range_v: the instrument's setting (lockin_range_v is applied here).
   LockinReading lockin(double t_s, double time_constant_s, double range_v) const;
   ThermometerReading thermometer(double t_s) const;
   double field_reading_t(double t_s) const;

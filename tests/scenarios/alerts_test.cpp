@@ -1,0 +1,160 @@
+// Alert rules raised and cleared by scenarios replayed into a real lphid,
+// read back with `lphi alerts --all --json`. faulty.toml puts one thing
+// wrong into one sweep and puts it right before the next (drivers/sim/
+// scenarios/faulty.toml): the lock-in's range too low for 200 s (overload),
+// a capacitive pickup for a whole sweep (Y/X = 0.3), a heater glitch of
+// 10 mK inside a sweep at 0.1 K (temperature unstable). It ends with a
+// warm-up to 1 K, which clears what only the cold raised. The [alerts]
+// thresholds below are narrowed so that this film crosses them:
+//   lphi-range min 0.25 um: L_phi is 0.218 um at 1 K, 0.30 um at 0.5 K, and
+//     0.218 um again after the warm-up (raised, cleared, raised again);
+//   excitation-heating max 5: e V / k_B T = e I R N / k_B T is about
+//     0.97 K / T here (X/g = 85 uV), above 5 from 0.1 K down, ~1 at 1 K.
+#include <gtest/gtest.h>
+
+#include <algorithm>
+#include <map>
+#include <nlohmann/json.hpp>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "live_run.hpp"
+
+namespace {
+
+using lphi::testing::LiveRun;
+using nlohmann::json;
+
+std::vector<json> alerts_of(const json& all, const std::string& rule) {
+  std::vector<json> out;
+  if (!all.is_array()) return out;
+  for (const auto& a : all)
+    if (a.value("rule", "") == rule) out.push_back(a);
+  return out;
+}
+
+bool raised_and_cleared(const std::vector<json>& alerts) {
+  return std::any_of(alerts.begin(), alerts.end(), [](const json& a) {
+    return a.value("state", "") == "cleared" && a.contains("cleared_at") && !a["cleared_at"].is_null() &&
+           a.contains("raised_at") && !a["raised_at"].is_null();
+  });
+}
+
+std::string describe(const std::vector<json>& alerts) {
+  std::string s;
+  for (const auto& a : alerts) s += a.dump() + "\n";
+  return s.empty() ? "(none)" : s;
+}
+
+TEST(ScenarioAlerts, FaultyInstrumentsRaiseAndClearTheirAlerts) {
+  LiveRun run;
+  ASSERT_TRUE(run.record("faulty.toml", 1.0)) << run.error();
+  run.write_config("film", "", "",
+                   "[alerts.lphi-range]\nmin_m = 0.25e-6\nmax_m = 100e-6\n"
+                   "[alerts.excitation-heating]\nmax_ratio = 5.0\n");
+  ASSERT_TRUE(run.start_daemon()) << run.error();
+  const auto r = run.replay(run.csv_path(), "film");
+  ASSERT_EQ(r.exit_code, 0) << r.out << r.err << run.daemon_log();
+  const auto all = run.query("alerts", "", {"--all"});
+  ASSERT_TRUE(all && all->is_array()) << run.error();
+
+  for (const char* rule : {"lockin-overload", "quadrature", "temperature-unstable", "lphi-range",
+                           "excitation-heating"}) {
+    const auto a = alerts_of(*all, rule);
+    EXPECT_TRUE(raised_and_cleared(a)) << rule << " was not raised and cleared:\n" << describe(a);
+  }
+  // Each fault lasted one sweep: one alert each, not one per reading (the
+  // lifecycle's hysteresis).
+  for (const char* rule : {"lockin-overload", "quadrature"})
+    EXPECT_EQ(alerts_of(*all, rule).size(), 1u) << rule << ":\n" << describe(alerts_of(*all, rule));
+  // The glitch's alert is the sweep at 0.1 K's (its context names the
+  // sweep's temperature), raised and cleared.
+  std::vector<json> glitch;
+  for (const auto& a : alerts_of(*all, "temperature-unstable")) {
+    const double t = a.contains("context") ? a["context"].value("temperature_k", 0.0) : 0.0;
+    if (t > 0.095 && t < 0.115) glitch.push_back(a);
+  }
+  EXPECT_EQ(glitch.size(), 1u) << describe(alerts_of(*all, "temperature-unstable"));
+  EXPECT_TRUE(raised_and_cleared(glitch)) << describe(glitch);
+  // L_phi below the minimum at 1 K, at the start and again after the warm-up.
+  const auto range = alerts_of(*all, "lphi-range");
+  EXPECT_EQ(range.size(), 2u) << describe(range);
+  // The film saturates: raised (the cooldown never leaves the state).
+  EXPECT_FALSE(alerts_of(*all, "verdict-saturated").empty()) << all->dump(2);
+  // Every alert is complete.
+  for (const auto& a : *all) {
+    for (const char* key : {"id", "rule", "severity", "state", "raised_at", "message"})
+      EXPECT_TRUE(a.contains(key)) << key << " missing in " << a.dump();
+    const std::string sev = a.value("severity", "");
+    EXPECT_TRUE(sev == "info" || sev == "warning" || sev == "critical") << a.dump();
+  }
+}
+
+TEST(ScenarioAlerts, SaturatingIsRaisedThenClearedWhenSaturated) {
+  // saturation.toml: as the cooldown goes on the verdict passes through
+  // saturating (the saturation term significant, T_min still above
+  // T_sat / 2) to saturated (T_min = 20 mK < 25 mK): verdict-saturating is
+  // raised and cleared, verdict-saturated raised and still live at the end.
+  LiveRun run;
+  ASSERT_TRUE(run.record("saturation.toml", 1.0)) << run.error();
+  run.write_config("film", "");
+  ASSERT_TRUE(run.start_daemon()) << run.error();
+  const auto r = run.replay(run.csv_path(), "film");
+  ASSERT_EQ(r.exit_code, 0) << r.out << r.err << run.daemon_log();
+  const auto all = run.query("alerts", "", {"--all"});
+  ASSERT_TRUE(all && all->is_array()) << run.error();
+  EXPECT_TRUE(raised_and_cleared(alerts_of(*all, "verdict-saturating"))) << all->dump(2);
+  const auto saturated = alerts_of(*all, "verdict-saturated");
+  ASSERT_EQ(saturated.size(), 1u) << all->dump(2);
+  EXPECT_NE(saturated[0].value("state", ""), "cleared");
+  // The electrons cool: no electrons-not-cooling alert is live at the end.
+  for (const auto& a : alerts_of(*all, "electrons-not-cooling"))
+    EXPECT_EQ(a.value("state", ""), "cleared") << a.dump();
+  // Live alerts (without --all) are the ones not cleared.
+  const auto live = run.query("alerts", "");
+  ASSERT_TRUE(live && live->is_array()) << run.error();
+  for (const auto& a : *live) EXPECT_NE(a.value("state", ""), "cleared") << a.dump();
+  EXPECT_FALSE(alerts_of(*live, "verdict-saturated").empty());
+}
+
+TEST(ScenarioAlerts, HeatingRaisesElectronsNotCooling) {
+  // heating.toml: the electrons stop cooling at 60 mK; the rule is raised
+  // and, since the evidence stays, still live at the end.
+  LiveRun run;
+  ASSERT_TRUE(run.record("heating.toml", 1.0)) << run.error();
+  run.write_config("film", "");
+  ASSERT_TRUE(run.start_daemon()) << run.error();
+  const auto r = run.replay(run.csv_path(), "film");
+  ASSERT_EQ(r.exit_code, 0) << r.out << r.err << run.daemon_log();
+  const auto all = run.query("alerts", "", {"--all"});
+  ASSERT_TRUE(all && all->is_array()) << run.error();
+  const auto hot = alerts_of(*all, "electrons-not-cooling");
+  ASSERT_EQ(hot.size(), 1u) << all->dump(2);
+  EXPECT_EQ(hot[0].value("severity", ""), "critical") << "the rule's default severity";
+  EXPECT_NE(hot[0].value("state", ""), "cleared");
+}
+
+TEST(ScenarioAlerts, SilentSourcesAreRaisedOnTheWallClock) {
+  // source-silent is the one rule on wall time: once the replay has ended
+  // nothing arrives, and with silent_s = 2 each of the three sources is
+  // reported within a few health ticks (1 s apart).
+  LiveRun run;
+  ASSERT_TRUE(run.record("saturation.toml", 0.2, {"--duration-s", "3000"})) << run.error();
+  run.write_config("film", "", "", "[alerts.source-silent]\nsilent_s = 2.0\n");
+  ASSERT_TRUE(run.start_daemon()) << run.error();
+  const auto r = run.replay(run.csv_path(), "film");
+  ASSERT_EQ(r.exit_code, 0) << r.out << r.err << run.daemon_log();
+  std::vector<json> silent;
+  for (int i = 0; i < 100 && silent.size() < 3; ++i) {
+    std::this_thread::sleep_for(std::chrono::milliseconds(100));
+    if (const auto all = run.query("alerts", "", {"--all"})) silent = alerts_of(*all, "source-silent");
+  }
+  ASSERT_EQ(silent.size(), 3u) << describe(silent);
+  std::vector<std::string> subjects;
+  for (const auto& a : silent) subjects.push_back(a.value("subject", ""));
+  std::sort(subjects.begin(), subjects.end());
+  EXPECT_EQ(subjects, (std::vector<std::string>{"lockin", "magnet", "mxc"}));
+}
+
+}  // namespace
