@@ -14,13 +14,10 @@
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/client/format.hpp"
 #include "daemon/client/options.hpp"
+#include "daemon/live/result_json.hpp"
 
 namespace lphi::client {
 namespace {
-
-nlohmann::json optional_json(const std::optional<double>& v) {
-  return v && std::isfinite(*v) ? nlohmann::json(*v) : nlohmann::json(nullptr);
-}
 
 std::string state_sentence(dephasing::State s) {
   switch (s) {
@@ -36,41 +33,11 @@ std::string state_sentence(dephasing::State s) {
   return "unknown";
 }
 
+// The keys lphid's verdict also carries (daemon/live/result_json.hpp), plus
+// the input file.
 nlohmann::json to_json(const dephasing::DephasingResult& r, const std::string& source) {
-  nlohmann::json j;
+  nlohmann::json j = live::dephasing_json(r);
   j["input"] = source;
-  j["state"] = std::string(dephasing::state_name(r.state));
-  j["n_points"] = r.n_points;
-  j["exponent_p"] = optional_json(r.exponent_p);
-  j["exponent_p_err"] = optional_json(r.exponent_p_err);
-  j["prefactor_b"] = optional_json(r.prefactor_b);
-  j["prefactor_b_err"] = optional_json(r.prefactor_b_err);
-  j["lphi_sat_m"] = optional_json(r.lphi_sat_m);
-  j["lphi_sat_err_m"] = optional_json(r.lphi_sat_err_m);
-  j["t_sat_k"] = optional_json(r.t_sat_k);
-  j["t_sat_err_k"] = optional_json(r.t_sat_err_k);
-  j["chi2_saturating"] = r.chi2_saturating;
-  j["chi2_power_law"] = r.chi2_power_law;
-  j["aic_saturating"] = r.aic_saturating;
-  j["aic_power_law"] = r.aic_power_law;
-  j["f_statistic"] = r.f_statistic;
-  j["p_value"] = r.p_value;
-  j["power_law"] = {{"prefactor_b", r.power_law.b},
-                    {"prefactor_b_err", r.power_law.b_err},
-                    {"exponent_p", r.power_law.p},
-                    {"exponent_p_err", r.power_law.p_err},
-                    {"chi2", r.power_law.chi2},
-                    {"converged", r.power_law.converged}};
-  j["n_temperatures"] = r.n_temperatures;
-  j["errors_from_scatter"] = r.errors_from_scatter;
-  j["expected_exponent"] = r.expected_exponent;
-  j["reference_temperature_k"] = r.reference_temperature_k;
-  j["saturation_at_boundary"] = r.saturation_at_boundary;
-  j["converged"] = r.converged;
-  j["notes"] = r.notes;
-  j["aak_ratio"] = optional_json(r.aak_ratio);
-  j["aak_ratio_err"] = optional_json(r.aak_ratio_err);
-  j["aak_rate_per_s_at_1k"] = optional_json(r.aak_rate_per_s_at_1k);
   return j;
 }
 

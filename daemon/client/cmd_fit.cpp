@@ -18,6 +18,7 @@
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/client/format.hpp"
 #include "daemon/client/options.hpp"
+#include "daemon/live/result_json.hpp"
 
 namespace lphi::client {
 namespace {
@@ -41,10 +42,6 @@ std::optional<Signal> signal_from_name(std::string_view name) {
   return std::nullopt;
 }
 
-nlohmann::json optional_json(const std::optional<double>& v) {
-  return v && std::isfinite(*v) ? nlohmann::json(*v) : nlohmann::json(nullptr);
-}
-
 struct FitOutcome {
   std::string source;
   Signal signal = Signal::rsq;
@@ -53,40 +50,13 @@ struct FitOutcome {
   fit::SweepFitResult result;
 };
 
+// The keys lphid's fits also carry (daemon/live/result_json.hpp), plus the
+// input file, the signal column used and the rows read.
 nlohmann::json to_json(const FitOutcome& o) {
-  const auto& r = o.result;
-  nlohmann::json flags = nlohmann::json::array();
-  for (fit::Flag f : r.flags) flags.push_back(std::string(fit::flag_name(f)));
-  nlohmann::json j;
-  j["model"] = std::string(mc::model_name(r.model));
+  nlohmann::json j = live::sweep_fit_json(o.result, o.prepared);
   j["input"] = o.source;
   j["input_column"] = std::string(column_name(o.signal));
   j["n_rows"] = o.rows;
-  j["lphi_m"] = r.lphi_m;
-  j["lphi_err_m"] = r.lphi_err_m;
-  j["alpha"] = optional_json(r.alpha);
-  j["alpha_err"] = optional_json(r.alpha_err);
-  j["lso_m"] = optional_json(r.lso_m);
-  j["lso_err_m"] = optional_json(r.lso_err_m);
-  j["chi2"] = r.chi2;
-  j["chi2_red"] = r.chi2_red;
-  j["n_points"] = r.n_points;
-  j["field_window_t"] = r.field_window_t;
-  j["b_phi_t"] = r.b_phi_t;
-  j["converged"] = r.converged;
-  j["termination"] = r.termination;
-  j["iterations"] = r.iterations;
-  j["flags"] = flags;
-  j["offset_s"] = r.offset_s;
-  j["offset_err_s"] = r.offset_err_s;
-  j["background_s_per_t2"] = optional_json(r.background_s_per_t2);
-  j["background_err_s_per_t2"] = optional_json(r.background_err_s_per_t2);
-  j["corr_alpha_lphi"] = r.alpha ? nlohmann::json(r.corr_alpha_lphi) : nlohmann::json(nullptr);
-  j["corr_lso_lphi"] = r.lso_m ? nlohmann::json(r.corr_lso_lphi) : nlohmann::json(nullptr);
-  j["sigma0_s"] = o.prepared.sigma0_s;
-  j["sigma0_err_s"] = o.prepared.sigma0_err_s;
-  j["rsq0_ohm"] = o.prepared.rsq0_ohm;
-  j["max_field_t"] = o.prepared.max_field_t;
   return j;
 }
 

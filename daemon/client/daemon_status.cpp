@@ -1,5 +1,6 @@
 // lphi status: what lphid reports about itself, its sources and its writer.
 #include <chrono>
+#include <cstdint>
 #include <cstdio>
 #include <iostream>
 #include <nlohmann/json.hpp>
@@ -26,15 +27,15 @@ std::string value_or_dash(const json& v, int digits) {
 
 void print_human(const json& s) {
   std::cout << "lphid pid " << s.value("pid", 0) << ", up " << fixed(s.value("uptime_s", 0.0), 0)
-            << " s, database " << fixed(static_cast<double>(s.value("database_bytes", 0)) / 1e6, 1) << " MB\n";
+            << " s, database " << fixed(s.value("database_bytes", 0.0) / 1e6, 1) << " MB\n";
   const auto& w = s.at("writer");
-  std::cout << "writer: " << w.value("queued_readings", 0) << " readings queued, lag "
-            << fixed(w.value("lag_s", 0.0), 3) << " s, " << w.value("commits", 0) << " commits, p99.9 "
+  std::cout << "writer: " << w.value("queued_readings", std::uint64_t{0}) << " readings queued, lag "
+            << fixed(w.value("lag_s", 0.0), 3) << " s, " << w.value("commits", std::uint64_t{0}) << " commits, p99.9 "
             << fixed(w.value("commit_p999_s", 0.0) * 1e3, 2) << " ms"
             << (w.value("backpressure", false) ? ", back-pressure ON" : "") << "\n";
   const auto& c = s.at("counters");
-  std::cout << "readings: " << c.value("accepted", 0) << " accepted, " << c.value("duplicates", 0)
-            << " duplicates, " << c.value("gaps", 0) << " gaps\n";
+  std::cout << "readings: " << c.value("accepted", std::uint64_t{0}) << " accepted, " << c.value("duplicates", std::uint64_t{0})
+            << " duplicates, " << c.value("gaps", std::uint64_t{0}) << " gaps\n";
   for (const char* group : {"rejected_readings", "refused_messages"}) {
     if (c.contains(group) && !c.at(group).empty()) {
       std::cout << (std::string(group) == "rejected_readings" ? "rejected readings:" : "refused messages:");
