@@ -20,6 +20,7 @@
 
 #include <algorithm>
 #include <chrono>
+#include <cerrno>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -153,7 +154,18 @@ int main(int argc, char** argv) {
   }
   if (dir.empty()) {
     char pattern[] = "/tmp/lphi-live-bench-XXXXXX";
-    dir = ::mkdtemp(pattern);
+    if (::mkdtemp(pattern) == nullptr) {
+      std::fprintf(stderr, "live_bench: cannot make a directory in /tmp: %s\n", std::strerror(errno));
+      return 1;
+    }
+    dir = pattern;
+  } else {
+    std::error_code ec;
+    std::filesystem::create_directories(dir, ec);
+    if (ec) {
+      std::fprintf(stderr, "live_bench: cannot make %s: %s\n", dir.c_str(), ec.message().c_str());
+      return 1;
+    }
   }
   auto scenario = long_cooldown(days);
   if (!scenario) return 1;

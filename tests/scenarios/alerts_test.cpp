@@ -13,6 +13,8 @@
 #include <gtest/gtest.h>
 
 #include <algorithm>
+#include <chrono>
+#include <fstream>
 #include <map>
 #include <nlohmann/json.hpp>
 #include <string>
@@ -155,6 +157,90 @@ TEST(ScenarioAlerts, SilentSourcesAreRaisedOnTheWallClock) {
   for (const auto& a : silent) subjects.push_back(a.value("subject", ""));
   std::sort(subjects.begin(), subjects.end());
   EXPECT_EQ(subjects, (std::vector<std::string>{"lockin", "magnet", "mxc"}));
+}
+
+TEST(ScenarioAlerts, LivenessRulesAreRaisedAndClearedOnTheWallClock) {
+  // The wall-clock rules after a short replay, with thresholds narrowed:
+  //  - source-silent (silent_s = 2): all three sources fall silent after
+  //    the replay; one lock-in reading sent afterwards clears the lock-in's;
+  //  - gap (quiet_s = 2): that reading skips five sequence numbers, which
+  //    the store records as a gap: raised, and cleared 2 s later;
+  //  - disk-space (min_free_bytes = 1e18, more than any disk here): raised
+  //    at the first health tick; lphid restarted with 1 byte (a restart
+  //    keeps live alerts) clears it at its first tick.
+  LiveRun run;
+  ASSERT_TRUE(run.record("saturation.toml", 0.2, {"--duration-s", "3000"})) << run.error();
+  const std::string narrowed = "[alerts.source-silent]\nsilent_s = 2.0\n[alerts.gap]\nquiet_s = 2.0\n";
+  run.write_config("film", "", "", narrowed + "[alerts.disk-space]\nmin_free_bytes = 1.0e18\n");
+  ASSERT_TRUE(run.start_daemon()) << run.error();
+  const auto r = run.replay(run.csv_path(), "film");
+  ASSERT_EQ(r.exit_code, 0) << r.out << r.err << run.daemon_log();
+
+  // Polls `lphi alerts --all` (100 ms apart, 20 s at most) until `done`.
+  auto wait_for = [&](auto done) {
+    json all = json::array();
+    for (int i = 0; i < 200; ++i) {
+      if (const auto a = run.query("alerts", "", {"--all"})) {
+        all = *a;
+        if (done(all)) break;
+      }
+      std::this_thread::sleep_for(std::chrono::milliseconds(100));
+    }
+    return all;
+  };
+  auto live_for = [](const json& all, const std::string& rule, const std::string& subject) {
+    for (const auto& a : alerts_of(all, rule))
+      if (a.value("subject", "") == subject && a.value("state", "") != "cleared") return true;
+    return false;
+  };
+  auto cleared_for = [](const json& all, const std::string& rule, const std::string& subject) {
+    for (const auto& a : alerts_of(all, rule))
+      if (a.value("subject", "") == subject && a.value("state", "") == "cleared") return true;
+    return false;
+  };
+  json all = wait_for([&](const json& a) {
+    return live_for(a, "source-silent", "lockin") && live_for(a, "disk-space", "");
+  });
+  ASSERT_TRUE(live_for(all, "source-silent", "lockin")) << all.dump(2);
+  ASSERT_TRUE(live_for(all, "disk-space", "")) << all.dump(2);
+  EXPECT_TRUE(alerts_of(all, "gap").empty()) << "the replay had no gap\n" << all.dump(2);
+
+  // One lock-in reading, now, five sequence numbers past the last one.
+  const auto status = run.lphi({"status", "--json"});
+  ASSERT_EQ(status.exit_code, 0) << status.err;
+  std::int64_t last_seq = -1;
+  const json status_reply = json::parse(status.out);
+  for (const auto& src : status_reply.at("sources"))
+    if (src.value("name", "") == "lockin") last_seq = src.value("highest_seq", std::int64_t{-1});
+  ASSERT_GE(last_seq, 0) << status.out;
+  const double now = std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
+  const std::string line = run.file("one.jsonl");
+  {
+    std::ofstream out(line);
+    out.precision(17);
+    out << "{\"seq\": " << last_seq + 6 << ", \"t\": " << now << ", \"x_v\": 1.0e-4, \"y_v\": 1.0e-6}\n";
+  }
+  const auto sent = lphi::testing::run_program(
+      {LPHI_PATH, "send", "--data-dir", run.data_dir(), "--source", "lockin"}, line, std::chrono::seconds(30));
+  ASSERT_EQ(sent.exit_code, 0) << sent.out << sent.err;
+
+  all = wait_for([&](const json& a) {
+    return cleared_for(a, "source-silent", "lockin") && cleared_for(a, "gap", "lockin");
+  });
+  EXPECT_TRUE(cleared_for(all, "source-silent", "lockin")) << all.dump(2);
+  const auto gaps = alerts_of(all, "gap");
+  ASSERT_EQ(gaps.size(), 1u) << all.dump(2);
+  EXPECT_EQ(gaps[0].value("subject", ""), "lockin");
+  EXPECT_TRUE(raised_and_cleared(gaps)) << gaps[0].dump(2);
+  // The thermometer and the magnet stay silent.
+  EXPECT_TRUE(live_for(all, "source-silent", "mxc")) << all.dump(2);
+  EXPECT_TRUE(live_for(all, "source-silent", "magnet")) << all.dump(2);
+
+  ASSERT_EQ(run.stop_daemon(), 0) << run.daemon_log();
+  run.write_config("film", "", "", narrowed + "[alerts.disk-space]\nmin_free_bytes = 1.0\n");
+  ASSERT_TRUE(run.start_daemon()) << run.error();
+  all = wait_for([&](const json& a) { return cleared_for(a, "disk-space", ""); });
+  EXPECT_TRUE(raised_and_cleared(alerts_of(all, "disk-space"))) << all.dump(2);
 }
 
 }  // namespace
