@@ -79,6 +79,14 @@ TEST(ScenarioAlerts, FaultyInstrumentsRaiseAndClearTheirAlerts) {
   }
   EXPECT_EQ(glitch.size(), 1u) << describe(alerts_of(*all, "temperature-unstable"));
   EXPECT_TRUE(raised_and_cleared(glitch)) << describe(glitch);
+  // The overloaded sweep (X clipped at the range for 200 s) is not what any
+  // weak-localization model describes: its chi2_red against the sweep's own
+  // noise is far above 3, and the good sweeps after it clear fit-chi2.
+  const auto chi2 = alerts_of(*all, "fit-chi2");
+  EXPECT_TRUE(raised_and_cleared(chi2)) << describe(chi2);
+  EXPECT_TRUE(std::any_of(chi2.begin(), chi2.end(), [](const json& a) {
+    return a.contains("value") && a["value"].is_number() && a["value"].get<double>() > 100.0;
+  })) << describe(chi2);
   // L_phi below the minimum at 1 K, at the start and again after the warm-up.
   const auto range = alerts_of(*all, "lphi-range");
   EXPECT_EQ(range.size(), 2u) << describe(range);
