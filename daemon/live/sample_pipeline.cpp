@@ -274,9 +274,15 @@ FitRecord SamplePipeline::fit_points(const std::vector<const segment::Sweep*>& s
   rec.result["sigma_zero_s"] = rec.sigma0_s ? nlohmann::json(*rec.sigma0_s) : nlohmann::json(nullptr);
   rec.result["sigma_zero_err_s"] = rec.sigma0_err_s ? nlohmann::json(*rec.sigma0_err_s) : nlohmann::json(nullptr);
   if (!result.ok) rec.result["error"] = rec.error;
+  // The reasons name a chi2_red above the limit (the fit-chi2 alert judges
+  // it), but it does not keep a fit out of L_phi(T): a sweep slightly
+  // distorted near zero field (a lock-in filter lagging the ramp, say)
+  // still gives a usable L_phi with its scaled error, and dropping it would
+  // starve the saturation fit of exactly its coldest points.
   const auto q = checks::fit_quality(judged, noise_known, settings_.quality);
+  const auto usable = checks::fit_quality(result, false, settings_.quality);
   rec.quality = q.reasons;
-  rec.used_in_dephasing = q.usable_for_dephasing && std::isfinite(rec.lphi_m) && rec.lphi_m > 0.0;
+  rec.used_in_dephasing = usable.usable_for_dephasing && std::isfinite(rec.lphi_m) && rec.lphi_m > 0.0;
   return rec;
 }
 

@@ -18,7 +18,7 @@
 // variance of the points' noise, estimated from the sweep itself without a
 // model (conductance::point_noise_s): dimensionless, about 1 for a good fit,
 // and what the fit-chi2 alert judges (fit_sweep's own, in (e^2/(pi h))^2, is
-// kept as chi2_red_quantum). A sweep's sigma(0) is the robust estimate from
+// kept as chi2_red_quantum); it does not keep a fit out of L_phi(T). A sweep's sigma(0) is the robust estimate from
 // its innermost points plus the fitted offset (the model's own zero-field
 // value; the innermost points alone are biased when B_phi is below their
 // field span). sigma(0) per plateau: the mean of those over the plateau's
