@@ -262,8 +262,17 @@ PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, Prepar
   return {true, {}};
 }
 
-double point_noise_s(std::span<const DeltaSigmaPoint> points) {
-  std::vector<double> e;
+namespace {
+
+// |e_i| of point_noise_s for the inner points i with distinct neighbouring
+// fields, with the index of the point each belongs to.
+struct DifferenceResidual {
+  std::size_t point = 0;
+  double magnitude = 0.0;
+};
+
+std::vector<DifferenceResidual> difference_residuals(std::span<const DeltaSigmaPoint> points) {
+  std::vector<DifferenceResidual> e;
   if (points.size() >= 3) e.reserve(points.size() - 2);
   for (std::size_t i = 1; i + 1 < points.size(); ++i) {
     const double b0 = points[i - 1].field_t, b1 = points[i].field_t, b2 = points[i + 1].field_t;
@@ -272,14 +281,48 @@ double point_noise_s(std::span<const DeltaSigmaPoint> points) {
     const double b = 1.0 - a;
     const double r =
         a * points[i - 1].delta_sigma_s + b * points[i + 1].delta_sigma_s - points[i].delta_sigma_s;
-    e.push_back(std::fabs(r) / std::sqrt(a * a + b * b + 1.0));
+    e.push_back({i, std::fabs(r) / std::sqrt(a * a + b * b + 1.0)});
   }
-  if (e.empty()) return 0.0;
-  const auto mid = e.begin() + static_cast<std::ptrdiff_t>(e.size() / 2);
-  std::nth_element(e.begin(), mid, e.end());
+  return e;
+}
+
+// 1.4826 * the median of v (reordered); v not empty.
+double robust_scale(std::vector<double>& v) {
+  const auto mid = v.begin() + static_cast<std::ptrdiff_t>(v.size() / 2);
+  std::nth_element(v.begin(), mid, v.end());
   double median = *mid;
-  if (e.size() % 2 == 0) median = 0.5 * (median + *std::max_element(e.begin(), mid));
+  if (v.size() % 2 == 0) median = 0.5 * (median + *std::max_element(v.begin(), mid));
   return 1.4826 * median;
+}
+
+}  // namespace
+
+double point_noise_s(std::span<const DeltaSigmaPoint> points) {
+  const std::vector<DifferenceResidual> e = difference_residuals(points);
+  if (e.empty()) return 0.0;
+  std::vector<double> magnitudes(e.size());
+  for (std::size_t k = 0; k < e.size(); ++k) magnitudes[k] = e[k].magnitude;
+  return robust_scale(magnitudes);
+}
+
+std::vector<double> point_noise_profile_s(std::span<const DeltaSigmaPoint> points,
+                                          std::size_t half_width) {
+  std::vector<double> profile(points.size(), 0.0);
+  const std::vector<DifferenceResidual> e = difference_residuals(points);
+  if (e.empty() || half_width == 0) return profile;
+  const std::size_t width = std::min(e.size(), 2 * half_width + 1);
+  std::vector<double> window(width);
+  // Residual k sits at point e[k].point; point i takes the window centred on
+  // the first residual at or after it, shifted inward to stay inside.
+  std::size_t k = 0;
+  for (std::size_t i = 0; i < points.size(); ++i) {
+    while (k + 1 < e.size() && e[k].point < i) ++k;
+    const std::size_t first =
+        std::min(k >= half_width ? k - half_width : std::size_t{0}, e.size() - width);
+    for (std::size_t j = 0; j < width; ++j) window[j] = e[first + j].magnitude;
+    profile[i] = robust_scale(window);
+  }
+  return profile;
 }
 
 }  // namespace lphi::conductance

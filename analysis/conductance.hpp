@@ -90,4 +90,23 @@ PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance_ohm,
 // prepare_sweep leaves them).
 double point_noise_s(std::span<const DeltaSigmaPoint> points);
 
+// The noise of each point, for sweeps whose noise changes along the field.
+// A field reading's own noise dB turns into a conductance error of
+// (d sigma/dB) dB, which is largest near zero field at low temperature, where
+// the weak-localization curve is steepest; the lock-in's noise is the same
+// everywhere. One number for the whole sweep (point_noise_s, a median) then
+// describes the flat far-field points and understates the noise where the
+// fit's information is. Here the scale is local: the same difference
+// residuals e_i as point_noise_s, and for point i the robust scale
+// 1.4826 * median |e_j| over the 2 * half_width + 1 residuals centred on it
+// (the window slides inward at the ends of the sweep, so that every point
+// gets a full window when the sweep has one). This is the local variant of
+// difference-based variance-function estimation (H.-G. Mueller and
+// U. Stadtmueller, Ann. Statist. 15, 610 (1987), who average squared
+// pseudo-residuals locally; the median here keeps a spike from raising its
+// neighbours' noise). Same length as points; all zeros when point_noise_s
+// would return 0. half_width must be at least 1.
+std::vector<double> point_noise_profile_s(std::span<const DeltaSigmaPoint> points,
+                                          std::size_t half_width = 15);
+
 }  // namespace lphi::conductance

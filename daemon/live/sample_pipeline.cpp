@@ -6,6 +6,7 @@
 
 #include "analysis/conductance.hpp"
 #include "analysis/constants.hpp"
+#include "analysis/sweep_residuals.hpp"
 #include "analysis/verdict.hpp"
 #include "daemon/live/result_json.hpp"
 
@@ -244,15 +245,17 @@ FitRecord SamplePipeline::fit_points(const std::vector<const segment::Sweep*>& s
   rec.lphi_err_m = result.lphi_err_m;
   // The fit has no point errors (the covariance is scaled by its own
   // residuals). Its quality is judged against the noise of the points,
-  // estimated without a model (conductance::point_noise_s): chi2_red here is
-  // the residual variance over that noise variance, dimensionless, about 1
-  // when the model describes the sweep.
+  // estimated point by point (fit::chi2_red_against_noise): the field
+  // reading's noise makes the steep points near zero field noisier than the
+  // flat far ones. chi2_red here is dimensionless, about 1 when the model
+  // describes the sweep. point_noise_s, the sweep's median
+  // noise, is reported beside it.
   const double noise_s = conductance::point_noise_s(prepared.points);
-  const bool noise_known = result.ok && noise_s > 0.0;
+  const std::optional<double> noise_chi2 =
+      result.ok ? fit::chi2_red_against_noise(prepared.points, result, options) : std::nullopt;
+  const bool noise_known = noise_chi2.has_value() && noise_s > 0.0;
   fit::SweepFitResult judged = result;
-  // fit_sweep's residuals are in units of e^2/(pi h) (sweep_fit.hpp).
-  const double noise_units = noise_s / si::wl_conductance_s;
-  if (noise_known) judged.chi2_red = result.chi2_red / (noise_units * noise_units);
+  if (noise_known) judged.chi2_red = *noise_chi2;
   rec.chi2_red = judged.chi2_red;
   rec.converged = result.converged;
   for (fit::Flag f : result.flags) rec.flags.emplace_back(fit::flag_name(f));
