@@ -5,14 +5,17 @@
 // sent into a real lphid as fast as the ingest accepts it with the
 // lphi_sender library; then the wait until the analysis is idle. Reports
 // readings/s, the wall times, the sweeps and fits, the analysis time per
-// fitted sweep and lphid's memory.
+// fitted sweep and lphid's memory. With --restart, lphid is then started
+// again on the full data directory and the time until its analysis is idle
+// again is reported (a restart re-segments the stored readings and reuses
+// the stored fits).
 //
 // The programme is saturation.toml's ten plateaus with as many 1000 s sweeps
 // each as fill --days. The lock-in's output filter is switched off
 // (time_constant_s = 0): it costs 48 model evaluations a reading in the
 // simulator, and this benchmark measures lphid, not lphi-sim.
 //
-// Usage: live_bench [--days D] [--rate-hz R] [--dir DIR]
+// Usage: live_bench [--days D] [--rate-hz R] [--dir DIR] [--restart]
 #include <signal.h>
 #include <spawn.h>
 #include <sys/wait.h>
@@ -129,22 +132,75 @@ struct Sample {
   long long sweeps;
 };
 
+// --restart: lphid started again on the full data directory, as after a
+// power cut or an upgrade in week four. Reports the time until it answers,
+// the time until the analysis of the stored readings is idle again, and how
+// many fits it reused rather than refitted.
+int measure_restart(const std::string& dir, std::size_t planned) {
+  std::printf("restart: lphid started again on %s\n", dir.c_str());
+  std::fflush(stdout);
+  const auto began = Clock::now();
+  const pid_t pid = start_daemon(dir);
+  if (pid <= 0) {
+    std::fprintf(stderr, "live_bench: cannot start %s again\n", LPHID_PATH);
+    return 1;
+  }
+  Control control(dir);
+  double answered_s = -1;
+  for (int i = 0; i < 3000; ++i) {
+    if (control.ask({{"type", "status"}}, 200ms)) {
+      answered_s = seconds_since(began);
+      break;
+    }
+  }
+  std::optional<nlohmann::json> last;
+  long rss_max_kb = 0;
+  const double limit_s = 3600;
+  while (seconds_since(began) < limit_s) {
+    last = control.ask({{"type", "progress"}, {"sample", "film"}});
+    rss_max_kb = std::max(rss_max_kb, status_kb(pid, "VmRSS:"));
+    if (last && last->value("idle", false)) break;
+    std::this_thread::sleep_for(200ms);
+  }
+  const double idle_s = seconds_since(began);
+  if (!last || !last->value("idle", false)) {
+    std::printf("restart: the analysis was not idle after %.0f s; last progress reply: %s\n", limit_s,
+                last ? last->dump().c_str() : "(none)");
+  } else {
+    std::printf("restart: control answered after %.2f s; analysis idle after %.1f s; sweeps %lld, fits %lld, "
+                "of which reused %lld (%zu planned)\n",
+                answered_s, idle_s, last->value("sweeps", 0LL), last->value("fits", 0LL),
+                last->value("fits_reused", 0LL), planned);
+  }
+  std::printf("restart: lphid RSS peak %ld kB (VmHWM), largest sampled %ld kB\n", status_kb(pid, "VmHWM:"),
+              rss_max_kb);
+  ::kill(pid, SIGTERM);
+  int st = 0;
+  ::waitpid(pid, &st, 0);
+  return last && last->value("idle", false) ? 0 : 1;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
   double days = 28.0, rate_hz = 20.0;
   std::string dir;
+  bool restart = false;
   for (int i = 1; i < argc; ++i) {
     const std::string a = argv[i];
+    if (a == "--restart") {
+      restart = true;
+      continue;
+    }
     if (i + 1 >= argc) {
-      std::fprintf(stderr, "live_bench: %s needs a value\nusage: live_bench [--days D] [--rate-hz R] [--dir DIR]\n", a.c_str());
+      std::fprintf(stderr, "live_bench: %s needs a value\nusage: live_bench [--days D] [--rate-hz R] [--dir DIR] [--restart]\n", a.c_str());
       return 2;
     }
     if (a == "--days") days = std::atof(argv[++i]);
     else if (a == "--rate-hz") rate_hz = std::atof(argv[++i]);
     else if (a == "--dir") dir = argv[++i];
     else {
-      std::fprintf(stderr, "live_bench: unknown option %s\nusage: live_bench [--days D] [--rate-hz R] [--dir DIR]\n", a.c_str());
+      std::fprintf(stderr, "live_bench: unknown option %s\nusage: live_bench [--days D] [--rate-hz R] [--dir DIR] [--restart]\n", a.c_str());
       return 2;
     }
   }
@@ -328,5 +384,6 @@ int main(int argc, char** argv) {
   ::kill(pid, SIGTERM);
   int st = 0;
   ::waitpid(pid, &st, 0);
+  if (restart) return measure_restart(dir, world.schedule().sweeps().size());
   return 0;
 }

@@ -33,36 +33,8 @@ const lphi::testing::RecordingPlan plan;
 // outside [10 nm, 200 nm] raises lphi-range (the truth at the coldest
 // plateau, 180 mK: 150 nm * (0.18/0.5)^(-1/2) = 250 nm).
 std::string config_text() {
-  return R"toml(
-[daemon]
-log_level = "info"
-[store]
-commit_max_ms = 20
-[[source]]
-name = "lockin-a"
-kind = "lockin"
-[[source]]
-name = "mxc"
-kind = "thermometer"
-[[source]]
-name = "magnet"
-kind = "field"
-[[sample]]
-name = "film-a"
-model = "hln2d"
-squares = 5.0
-width_m = 20e-6
-thickness_m = 10e-9
-excitation_a = 10e-9
-gain = 100.0
-lockin = "lockin-a"
-thermometer = "mxc"
-field = "magnet"
-plateau_min_duration_s = 30.0
-[alerts.lphi-range]
-min_m = 10e-9
-max_m = 200e-9
-)toml";
+  return lphi::testing::test_config("gain = 100.0\nplateau_min_duration_s = 30.0\n",
+                                    "[alerts.lphi-range]\nmin_m = 10e-9\nmax_m = 200e-9\n");
 }
 
 lphi::testing::RunResult lphi_cli(std::vector<std::string> args, std::chrono::seconds limit = 120s) {

@@ -19,7 +19,7 @@ namespace lphi::testing {
 
 using Clock = std::chrono::steady_clock;
 
-std::string test_config() {
+std::string test_config(const std::string& sample_extra, const std::string& tail) {
   return R"toml(
 [daemon]
 log_level = "info"
@@ -46,7 +46,7 @@ excitation_a = 10e-9
 lockin = "lockin-a"
 thermometer = "mxc"
 field = "magnet"
-)toml";
+)toml" + sample_extra + (sample_extra.empty() || sample_extra.back() == '\n' ? "" : "\n") + tail;
 }
 
 namespace {

@@ -12,8 +12,10 @@
 
 namespace lphi::testing {
 
-// Three sources, one of each kind, and one sample.
-std::string test_config();
+// Three sources, one of each kind (lockin-a, mxc, magnet), and one sample
+// (film-a, hln2d) using them. sample_extra is appended to the [[sample]]
+// table (more keys of film-a), tail after it (more tables, e.g. [alerts.*]).
+std::string test_config(const std::string& sample_extra = "", const std::string& tail = "");
 
 class DaemonProcess {
  public:

@@ -23,33 +23,7 @@ using nlohmann::json;
 using namespace std::chrono_literals;
 
 std::string live_config() {
-  return R"toml(
-[daemon]
-log_level = "info"
-[store]
-commit_max_ms = 20
-[[source]]
-name = "lockin-a"
-kind = "lockin"
-[[source]]
-name = "mxc"
-kind = "thermometer"
-[[source]]
-name = "magnet"
-kind = "field"
-[[sample]]
-name = "film-a"
-model = "hln2d"
-squares = 5.0
-width_m = 20e-6
-thickness_m = 10e-9
-excitation_a = 10e-9
-gain = 100.0
-lockin = "lockin-a"
-thermometer = "mxc"
-field = "magnet"
-plateau_min_duration_s = 60.0
-)toml";
+  return lphi::testing::test_config("gain = 100.0\nplateau_min_duration_s = 60.0\n");
 }
 
 // One request on the control socket, its reply (null after the timeout).
