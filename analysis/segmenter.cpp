@@ -292,9 +292,16 @@ void SweepSegmenter::emit(std::size_t first, std::size_t last, RunDirection dir,
   sw.t_start_s = run_[s].point.t_s;
   sw.t_end_s = run_[e].point.t_s;
   sw.temperature = acc.stats();
-  sw.temperature_run = run_[s].temperature_run;
-  // Runs are numbered in time order, so first == last means one run.
-  sw.temperature_unstable = run_[s].temperature_run != run_[e].temperature_run;
+  // Runs are numbered in time order, so first == last means one run. A
+  // sweep across a run boundary whose own temperatures meet the plateau
+  // criterion did not see a temperature change: the earlier run began on
+  // the slow tail of a ramp and broke when the plateau settled (see the
+  // header). It belongs to the run of its last point, which goes on.
+  sw.temperature_run = run_[e].temperature_run;
+  const bool one_run = run_[s].temperature_run == run_[e].temperature_run;
+  const bool within_spread = sw.temperature.max_k - sw.temperature.min_k <=
+                             options_.plateau.relative_spread * sw.temperature.mean_k;
+  sw.temperature_unstable = !one_run && !within_spread;
   sw.truncated = truncated;
   ++counts_.sweeps;
   if (sw.temperature_unstable) ++counts_.sweeps_temperature_unstable;

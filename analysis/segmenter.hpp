@@ -29,9 +29,16 @@
 // the span is emitted as a Sweep; others are counted and discarded.
 //
 // Temperature. A sweep whose points do not all lie in one temperature run
-// (a plateau boundary, or a spread above the criterion) is marked
-// temperature_unstable: it is emitted, so that it can be seen and alerted
-// on, but must be kept out of L_phi(T).
+// (a plateau boundary, or a spread above the criterion) and whose own
+// temperatures do not meet the plateau criterion either,
+//   (T_max - T_min) > relative_spread * T_mean   (over the sweep's points),
+// is marked temperature_unstable: it is emitted, so that it can be seen and
+// alerted on, but must be kept out of L_phi(T). The second condition is for
+// the greedy runs: a run that began on the slow tail of a cooling ramp
+// breaks when the spread from its first, warmer points is exceeded, which
+// can be in the middle of a sweep taken on the settled plateau. Such a
+// sweep is stable and belongs to the run of its last point (every sweep
+// does: the run that goes on).
 //
 // Settling. A lock-in output lags its input by several time constants tau;
 // points within settle = settling_time_constants * tau (tau of the point that
@@ -147,7 +154,7 @@ struct Sweep {
   double field_min_t = 0.0, field_max_t = 0.0;
   std::vector<align::AlignedPoint> points;  // in time order
   TemperatureStats temperature;
-  std::size_t temperature_run = 0;   // run of its first point
+  std::size_t temperature_run = 0;   // run of its last point (see Temperature above)
   bool temperature_unstable = false; // straddles a temperature change
   bool truncated = false;            // closed at max_points
   std::size_t n_overload = 0;        // points the lock-in flagged as overloaded

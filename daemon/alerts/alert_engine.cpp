@@ -257,7 +257,10 @@ void AlertEngine::on_fit(const FitFact& f) {
   Impl& m = *impl_;
   std::lock_guard lock(m.mutex);
   const AlertConfig& c = m.config;
-  const json base = {{"sweep_id", f.sweep_id}, {"t", f.t}, {"temperature_k", f.temperature_k}};
+  const json base = {{"sweep_id", f.sweep_id},
+                     {"sweep_index", f.sweep_index},
+                     {"t", f.t},
+                     {"temperature_k", f.temperature_k}};
 
   Observation failed;
   failed.context = base;
@@ -266,9 +269,9 @@ void AlertEngine::on_fit(const FitFact& f) {
     failed.context["error"] = f.error;
     failed.context["converged"] = f.converged;
     failed.message = !f.ok ? fmt::format("sample {}: the fit of sweep {} failed: {}", f.sample,
-                                         f.sweep_id, f.error.empty() ? "no reason given" : f.error)
+                                         f.sweep_index, f.error.empty() ? "no reason given" : f.error)
                            : fmt::format("sample {}: the fit of sweep {} did not converge", f.sample,
-                                         f.sweep_id);
+                                         f.sweep_index);
   } else {
     failed.judgement = Judgement::good;
   }
@@ -282,7 +285,7 @@ void AlertEngine::on_fit(const FitFact& f) {
   chi2.context["max_chi2_red"] = c.fit_chi2.max_chi2_red;
   chi2.judgement = above_limit(f.chi2_red, c.fit_chi2.max_chi2_red, c.fit_chi2.hysteresis);
   chi2.message = fmt::format("sample {}: chi2_red = {:.3g} for sweep {} is above {:g}", f.sample,
-                             f.chi2_red, f.sweep_id, c.fit_chi2.max_chi2_red);
+                             f.chi2_red, f.sweep_index, c.fit_chi2.max_chi2_red);
   m.evaluate("fit-chi2", f.sample, settings(c.fit_chi2), std::move(chi2), f.t, false);
 
   Observation range;
@@ -298,7 +301,7 @@ void AlertEngine::on_fit(const FitFact& f) {
                     : (low == Judgement::good && high == Judgement::good) ? Judgement::good
                                                                           : Judgement::band;
   range.message = fmt::format("sample {}: L_phi = {:.3g} m from sweep {} is outside [{:g}, {:g}] m",
-                              f.sample, f.lphi_m, f.sweep_id, c.lphi_range.min_m, c.lphi_range.max_m);
+                              f.sample, f.lphi_m, f.sweep_index, c.lphi_range.min_m, c.lphi_range.max_m);
   m.evaluate("lphi-range", f.sample, settings(c.lphi_range), std::move(range), f.t, false);
 }
 
@@ -307,6 +310,7 @@ void AlertEngine::on_sweep(const SweepFact& f) {
   std::lock_guard lock(m.mutex);
   const AlertConfig& c = m.config;
   const json base = {{"sweep_id", f.sweep_id},
+                     {"sweep_index", f.sweep_index},
                      {"t", f.t},
                      {"temperature_k", f.temperature_k},
                      {"n_points", f.n_points}};
@@ -319,7 +323,7 @@ void AlertEngine::on_sweep(const SweepFact& f) {
   unstable.message = fmt::format(
       "sample {}: the temperature changed during sweep {} (spread {:.3g} K around {:.4g} K); "
       "it is kept out of L_phi(T)",
-      f.sample, f.sweep_id, f.temperature_spread_k, f.temperature_k);
+      f.sample, f.sweep_index, f.temperature_spread_k, f.temperature_k);
   m.evaluate("temperature-unstable", f.sample, settings(c.temperature_unstable), std::move(unstable),
              f.t, false);
 
@@ -331,7 +335,7 @@ void AlertEngine::on_sweep(const SweepFact& f) {
                            ? Judgement::bad
                            : Judgement::good;
   overload.message = fmt::format("sample {}: {} of the {} points of sweep {} overloaded the lock-in",
-                                 f.sample, f.n_overload, f.n_points, f.sweep_id);
+                                 f.sample, f.n_overload, f.n_points, f.sweep_index);
   m.evaluate("lockin-overload", f.sample, settings(c.lockin_overload), std::move(overload), f.t, false);
 
   Observation quadrature;
@@ -345,7 +349,7 @@ void AlertEngine::on_sweep(const SweepFact& f) {
   quadrature.message = fmt::format(
       "sample {}: |Y/X| reached {:.3g} in sweep {} (limit {:g}): check the lock-in phase and "
       "capacitive pickup",
-      f.sample, f.max_quadrature_ratio, f.sweep_id, c.quadrature.max_ratio);
+      f.sample, f.max_quadrature_ratio, f.sweep_index, c.quadrature.max_ratio);
   m.evaluate("quadrature", f.sample, settings(c.quadrature), std::move(quadrature), f.t, false);
 
   Observation heating;
@@ -358,7 +362,7 @@ void AlertEngine::on_sweep(const SweepFact& f) {
   heating.message = fmt::format(
       "sample {}: e V / k_B T = {:.3g} at {:.4g} K in sweep {} (limit {:g}): the excitation may "
       "heat the electrons",
-      f.sample, f.excitation_ratio, f.temperature_k, f.sweep_id, c.excitation_heating.max_ratio);
+      f.sample, f.excitation_ratio, f.temperature_k, f.sweep_index, c.excitation_heating.max_ratio);
   m.evaluate("excitation-heating", f.sample, settings(c.excitation_heating), std::move(heating), f.t,
              false);
 }
@@ -368,6 +372,8 @@ void AlertEngine::on_verdict(const VerdictFact& f) {
   std::lock_guard lock(m.mutex);
   const AlertConfig& c = m.config;
   json base = {{"t", f.t},
+               {"sweep_index", f.sweep_index},
+               {"cooldown", f.cooldown},
                {"state", f.state},
                {"t_sat_k", optional_json(f.t_sat_k)},
                {"lphi_sat_m", optional_json(f.lphi_sat_m)}};
@@ -382,7 +388,7 @@ void AlertEngine::on_verdict(const VerdictFact& f) {
   saturating.value = f.t_sat_k;
   saturating.judgement = f.state == "saturating" ? Judgement::bad : Judgement::good;
   saturating.message =
-      fmt::format("sample {}: L_phi(T) is saturating{}{}", f.sample, t_sat, cause);
+      fmt::format("sample {}, cooldown {}: L_phi(T) is saturating{}{}", f.sample, f.cooldown, t_sat, cause);
   m.evaluate("verdict-saturating", f.sample, settings(c.verdict_saturating), std::move(saturating),
              f.t, false);
 
@@ -391,18 +397,23 @@ void AlertEngine::on_verdict(const VerdictFact& f) {
   saturated.value = f.t_sat_k;
   saturated.judgement = f.state == "saturated" ? Judgement::bad : Judgement::good;
   saturated.message =
-      fmt::format("sample {}: L_phi(T) has saturated{}{}{}", f.sample, t_sat, l_sat, cause);
+      fmt::format("sample {}, cooldown {}: L_phi(T) has saturated{}{}{}", f.sample, f.cooldown, t_sat,
+                  l_sat, cause);
   m.evaluate("verdict-saturated", f.sample, settings(c.verdict_saturated), std::move(saturated), f.t,
              false);
 
+  // No verdict on the electrons yet (null: too few plateaus, as early in a
+  // new cooldown) is no news either way: a live alert stays until sigma(0)
+  // is seen to follow ln T again, since a warm-up and cool-down meant to fix
+  // the heating may not have fixed it.
   Observation cooling;
   cooling.context = base;
   cooling.judgement = !f.electrons_cooling ? Judgement::none
                       : *f.electrons_cooling ? Judgement::good
                                              : Judgement::bad;
   cooling.message = fmt::format(
-      "sample {}: the electrons have stopped cooling: sigma(B=0) no longer follows ln T{}", f.sample,
-      t_sat);
+      "sample {}, cooldown {}: the electrons have stopped cooling: sigma(B=0) no longer follows ln T{}",
+      f.sample, f.cooldown, t_sat);
   m.evaluate("electrons-not-cooling", f.sample, settings(c.electrons_not_cooling), std::move(cooling),
              f.t, false);
 }

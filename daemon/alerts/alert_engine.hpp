@@ -33,9 +33,12 @@ namespace lphi::alerts {
 // --- facts -----------------------------------------------------------------
 
 // One sweep fit, after it is stored.
+// sweep_id is the sweeps row's id (stored in the context); sweep_index is
+// the sweep's index as `lphi sweeps` lists it (from 0), which the messages name.
 struct FitFact {
   std::string sample;
   std::int64_t sweep_id = 0;
+  std::int64_t sweep_index = 0;
   double t = 0.0;               // event time: end of the sweep
   bool ok = false;              // false: the fit failed (error below)
   std::string error;
@@ -50,6 +53,7 @@ struct FitFact {
 struct SweepFact {
   std::string sample;
   std::int64_t sweep_id = 0;
+  std::int64_t sweep_index = 0;
   double t = 0.0;                      // event time: end of the sweep
   bool temperature_unstable = false;
   double temperature_k = 0.0, temperature_spread_k = 0.0;
@@ -67,6 +71,8 @@ struct VerdictFact {
   std::optional<bool> electrons_cooling;
   std::optional<std::string> likely_cause;
   std::optional<double> t_sat_k, lphi_sat_m;
+  std::int64_t cooldown = 1;            // whose sweeps it judged (sample_pipeline.hpp)
+  std::int64_t sweep_index = 0;         // the sweep whose fit triggered it
 };
 
 // lphid's health, once per tick of its timer (wall time).

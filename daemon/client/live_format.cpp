@@ -115,8 +115,8 @@ void ColumnTable::print(std::ostream& out) const {
 }
 
 void print_sweeps_table(const json& sweeps, std::ostream& out) {
-  ColumnTable table({"sample", "sweep", "dir", "start (UTC)", "length", "field", "points", "T", "T spread",
-                     "fitted", "notes"});
+  ColumnTable table({"sample", "cooldown", "sweep", "dir", "start (UTC)", "length", "field", "points", "T",
+                     "T spread", "fitted", "notes"});
   for (const auto& s : sweeps) {
     std::string field = dash;
     if (const auto lo = number_at(s, "field_min_t"), hi = number_at(s, "field_max_t"); lo && hi) {
@@ -131,7 +131,8 @@ void print_sweeps_table(const json& sweeps, std::ostream& out) {
     if (flag_at(s, "temperature_unstable")) note("T unstable");
     if (flag_at(s, "truncated")) note("truncated");
     if (const auto n = number_at(s, "n_overload"); n && *n > 0) note(format_number(*n, 10) + " overloaded");
-    table.add({text_at(s, "sample"), text_at(s, "index"), text_at(s, "direction"), time_at(s, "t_start"), length,
+    table.add({text_at(s, "sample"), text_at(s, "cooldown"), text_at(s, "index"), text_at(s, "direction"),
+               time_at(s, "t_start"), length,
                field, text_at(s, "n_points"), temperature_at(s, "temperature_k"),
                temperature_at(s, "temperature_spread_k"), text_at(s, "fitted"), notes.empty() ? dash : notes});
   }
@@ -139,8 +140,8 @@ void print_sweeps_table(const json& sweeps, std::ostream& out) {
 }
 
 void print_fits_table(const json& fits, std::ostream& out) {
-  ColumnTable table({"sample", "sweep", "T", "L_phi", "alpha", "L_so", "chi2_red", "points", "window", "used",
-                     "notes"});
+  ColumnTable table({"sample", "cooldown", "sweep", "T", "L_phi", "alpha", "L_so", "chi2_red", "points", "window",
+                     "used", "notes"});
   for (const auto& f : fits) {
     std::string notes;
     auto note = [&](const std::string& n) { notes += (notes.empty() ? "" : "; ") + n; };
@@ -159,7 +160,8 @@ void print_fits_table(const json& fits, std::ostream& out) {
       }
     }
     const auto window = number_at(f, "field_window_t");
-    table.add({text_at(f, "sample"), text_at(f, "sweep_index"), temperature_at(f, "temperature_k"),
+    table.add({text_at(f, "sample"), text_at(f, "cooldown"), text_at(f, "sweep_index"),
+               temperature_at(f, "temperature_k"),
                length_at(f, "lphi_m", "lphi_err_m"), value_with_error(f, "alpha", "alpha_err"),
                length_at(f, "lso_m", "lso_err_m"), text_at(f, "chi2_red"), text_at(f, "n_points"),
                window ? format_field_mt(*window) : dash, text_at(f, "used_in_dephasing"),
@@ -175,6 +177,7 @@ void print_verdicts(const json& verdicts, std::ostream& out) {
     first = false;
     out << text_at(v, "sample") << ": " << text_at(v, "state") << '\n';
     TextTable table;
+    table.add("cooldown", text_at(v, "cooldown"));
     table.add("exponent p", value_with_error(v, "exponent_p", "exponent_p_err"));
     table.add("L_phi saturation", length_at(v, "lphi_sat_m", "lphi_sat_err_m"));
     table.add("T_sat", temperature_at(v, "t_sat_k", "t_sat_err_k"));
@@ -225,6 +228,7 @@ std::string event_line(std::string_view topic, const json& body) {
     if (body.is_object() && body.contains("likely_cause") && body["likely_cause"].is_string()) {
       line += ", likely cause " + text_at(body, "likely_cause");
     }
+    if (number_at(body, "cooldown")) line += ", cooldown " + text_at(body, "cooldown");
   } else if (topic == "alert") {
     line += "#" + text_at(body, "id") + " " + text_at(body, "severity") + " " + text_at(body, "state") + " " +
             text_at(body, "rule");

@@ -425,7 +425,8 @@ std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
                           {"probe_length_m", c.optional_positive_to(s.probe_length_m)},
                           {"fit_window_t", c.optional_positive_to(s.fit_window_t)},
                           {"excitation_ratio_max", c.positive_to(s.excitation_ratio_max)},
-                          {"quadrature_ratio_max", c.positive_to(s.quadrature_ratio_max)}});
+                          {"quadrature_ratio_max", c.positive_to(s.quadrature_ratio_max)},
+                          {"new_cooldown_above_k", c.positive_to(s.new_cooldown_above_k)}});
                  if (s.max_hold_s < std::max(s.max_age_temperature_s, s.max_age_field_s)) {
                    c.errors.push_back({t.source().begin.line, p + ".max_hold_s",
                                        "must be at least max_age_temperature_s and max_age_field_s"});

@@ -65,6 +65,9 @@ struct SampleConfig {
   std::optional<double> fit_window_t;    // fixed field window instead of the automatic one
   double excitation_ratio_max = 1.0;     // e V/(k_B T) at or above this is a heating risk
   double quadrature_ratio_max = 0.1;     // |Y/X| above this is large
+  // Warmed above this (after being below half of it) and cooled again: the
+  // next sweeps are a new cooldown, analysed apart from the previous one's.
+  double new_cooldown_above_k = 30.0;
 };
 
 struct ConfigError {

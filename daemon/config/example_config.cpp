@@ -107,6 +107,8 @@ field = "magnet"
 # fit_window_t = 0.05            # a fixed field window instead of the automatic one
 # excitation_ratio_max = 1.0     # e V/(k_B T) at or above this is a heating risk
 # quadrature_ratio_max = 0.1     # |Y/X| above this is large
+# new_cooldown_above_k = 30.0    # warmed above this for a minute (from below half of it): the next
+#                                # sweeps are a new cooldown, whose L_phi(T) and verdict leave the last one's out
 )toml";
 
 }  // namespace

@@ -113,6 +113,7 @@ SampleSettings sample_settings(const config::SampleConfig& c) {
   s.segmenter.settling_unknown_tau_s = c.settling_unknown_tau_s;
   s.heating.max_ratio = c.excitation_ratio_max;
   s.lockin.max_quadrature_ratio = c.quadrature_ratio_max;
+  s.new_cooldown_above_k = c.new_cooldown_above_k;
   return s;
 }
 
@@ -333,6 +334,7 @@ json LiveAnalysis::Worker::sweep_json(const SweepRecord& s, std::int64_t sweep_i
   return {{"sweep_id", sweep_id},
           {"sample", config.name},
           {"index", s.index},
+          {"cooldown", s.cooldown},
           {"direction", std::string(segment::direction_name(s.direction))},
           {"t_start", s.t_start_s},
           {"t_end", s.t_end_s},
@@ -353,6 +355,7 @@ json LiveAnalysis::Worker::fit_json(const FitRecord& f, std::int64_t sweep_id, d
   json j = f.result.is_object() ? f.result : json::object();
   j["sweep_id"] = sweep_id;
   j["sweep_index"] = f.sweep_index;
+  j["cooldown"] = f.cooldown;
   j["sample"] = config.name;
   j["temperature_k"] = f.temperature_k;
   j["temperature_spread_k"] = f.temperature_spread_k;
@@ -381,8 +384,8 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
              "INSERT INTO sweeps (sample_id, sweep_index, direction, t_start, t_end, field_min_t,"
              " field_max_t, n_points, temperature_k, temperature_spread_k, temperature_min_k, temperature_max_k,"
              " temperature_run, temperature_unstable, truncated, n_overload, max_quadrature_ratio,"
-             " sample_voltage_v, excitation_ratio)"
-             " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19)"
+             " sample_voltage_v, excitation_ratio, cooldown)"
+             " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20)"
              " ON CONFLICT (sample_id, sweep_index) DO UPDATE SET direction = excluded.direction,"
              " t_start = excluded.t_start, t_end = excluded.t_end, field_min_t = excluded.field_min_t,"
              " field_max_t = excluded.field_max_t, n_points = excluded.n_points,"
@@ -391,7 +394,7 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
              " temperature_run = excluded.temperature_run, temperature_unstable = excluded.temperature_unstable,"
              " truncated = excluded.truncated, n_overload = excluded.n_overload,"
              " max_quadrature_ratio = excluded.max_quadrature_ratio, sample_voltage_v = excluded.sample_voltage_v,"
-             " excitation_ratio = excluded.excitation_ratio",
+             " excitation_ratio = excluded.excitation_ratio, cooldown = excluded.cooldown",
              st)) {
       return fail("preparing the sweep insert");
     }
@@ -422,6 +425,7 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
                                                          : std::numeric_limits<double>::max());
       st.bind(18, s.sample_voltage_v);
       bind_finite(st, 19, s.excitation_ratio);
+      st.bind(20, s.cooldown);
       if (st.step() != SQLITE_DONE) return fail("storing sweep " + std::to_string(s.index));
       id.reset();
       id.bind(1, sample_id);
@@ -437,8 +441,8 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
              db,
              "INSERT OR REPLACE INTO fits (sweep_id, sample_id, combined_with, ok, error, model, lphi_m, lphi_err_m,"
              " chi2_red, converged, flags_json, temperature_k, temperature_spread_k, sigma0_s, sigma0_err_s,"
-             " used_in_dephasing, quality_json, result_json, t)"
-             " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19)",
+             " used_in_dephasing, quality_json, result_json, t, cooldown)"
+             " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20)",
              st)) {
       return fail("preparing the fit insert");
     }
@@ -468,6 +472,7 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
       st.bind(17, json(f.quality).dump());
       st.bind(18, f.result.dump());
       st.bind(19, f.t_s);
+      st.bind(20, f.cooldown);
       if (st.step() != SQLITE_DONE) return fail("storing the fit of sweep " + std::to_string(f.sweep_index));
     }
   }
@@ -475,7 +480,7 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
     if (!store::Statement::prepare(
              db,
              "INSERT OR REPLACE INTO zero_field_points (sample_id, temperature_run, temperature_k, sigma_s,"
-             " sigma_err_s, n_sweeps, t) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+             " sigma_err_s, n_sweeps, t, cooldown) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
              st)) {
       return fail("preparing the zero-field insert");
     }
@@ -488,6 +493,7 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
       st.bind(5, z.sigma_err_s);
       st.bind(6, to_i64(z.n_sweeps));
       st.bind(7, z.t_s);
+      st.bind(8, z.cooldown);
       if (st.step() != SQLITE_DONE) return fail("storing sigma(0) of a plateau");
     }
   }
@@ -495,8 +501,8 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
     if (!store::Statement::prepare(
              db,
              "INSERT OR REPLACE INTO verdicts (sample_id, sweep_index, t, state, electrons_cooling, likely_cause,"
-             " exponent_p, lphi_sat_m, t_sat_k, n_points, verdict_json)"
-             " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)",
+             " exponent_p, lphi_sat_m, t_sat_k, n_points, verdict_json, cooldown)"
+             " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
              st)) {
       return fail("preparing the verdict insert");
     }
@@ -521,6 +527,7 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
       bind_finite(st, 9, v.t_sat_k);
       st.bind(10, to_i64(v.n_points));
       st.bind(11, v.json.dump());
+      st.bind(12, v.cooldown);
       if (st.step() != SQLITE_DONE) return fail("storing the verdict");
     }
   }
@@ -565,6 +572,7 @@ void LiveAnalysis::Worker::publish(const PipelineOutput& out) {
       alerts::SweepFact fact;
       fact.sample = config.name;
       fact.sweep_id = id;
+      fact.sweep_index = s.index;
       fact.t = s.t_end_s;
       fact.temperature_unstable = s.temperature_unstable;
       fact.temperature_k = s.temperature.mean_k;
@@ -587,6 +595,7 @@ void LiveAnalysis::Worker::publish(const PipelineOutput& out) {
       alerts::FitFact fact;
       fact.sample = config.name;
       fact.sweep_id = id;
+      fact.sweep_index = f.sweep_index;
       fact.t = f.t_s;
       fact.ok = f.ok;
       fact.error = f.error;
@@ -611,6 +620,8 @@ void LiveAnalysis::Worker::publish(const PipelineOutput& out) {
       alerts::VerdictFact fact;
       fact.sample = config.name;
       fact.t = v.t_s;
+      fact.sweep_index = v.sweep_index;
+      fact.cooldown = v.cooldown;
       fact.state = v.state;
       fact.electrons_cooling = v.electrons_cooling;
       fact.likely_cause = v.likely_cause;
@@ -785,7 +796,7 @@ json LiveAnalysis::sweeps_reply(const json& request) {
           "SELECT s.id, sm.name, s.sweep_index, s.direction, s.t_start, s.t_end, s.field_min_t, s.field_max_t,"
           " s.n_points, s.temperature_k, s.temperature_spread_k, s.temperature_unstable, s.truncated,"
           " s.n_overload, s.max_quadrature_ratio, s.excitation_ratio,"
-          " EXISTS (SELECT 1 FROM fits f WHERE f.sweep_id = s.id OR f.combined_with = s.id)"
+          " EXISTS (SELECT 1 FROM fits f WHERE f.sweep_id = s.id OR f.combined_with = s.id), s.cooldown"
           " FROM sweeps s JOIN samples sm ON sm.id = s.sample_id"
           " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
           st);
@@ -812,7 +823,8 @@ json LiveAnalysis::sweeps_reply(const json& request) {
                       {"n_overload", st.column_int(13)},
                       {"max_quadrature_ratio", st.column_double(14)},
                       {"excitation_ratio", null_or(st, 15)},
-                      {"fitted", st.column_int(16) != 0}});
+                      {"fitted", st.column_int(16) != 0},
+                      {"cooldown", st.column_int(17)}});
   }
   if (rc != SQLITE_DONE) return error_reply(Reason::storage_error, control_db_.error("listing sweeps").message);
   return {{"type", "sweeps"}, {"sweeps", std::move(sweeps)}};
@@ -826,7 +838,7 @@ json LiveAnalysis::fits_reply(const json& request) {
           control_db_,
           "SELECT f.sweep_id, sm.name, s.sweep_index, f.result_json, f.temperature_k, f.temperature_spread_k,"
           " COALESCE(c.t_start, s.t_start), s.t_end, f.ok, f.error, f.used_in_dephasing, f.quality_json,"
-          " c.sweep_index"
+          " c.sweep_index, f.cooldown"
           " FROM fits f JOIN sweeps s ON s.id = f.sweep_id JOIN samples sm ON sm.id = f.sample_id"
           " LEFT JOIN sweeps c ON c.id = f.combined_with"
           " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
@@ -852,6 +864,7 @@ json LiveAnalysis::fits_reply(const json& request) {
     j["used_in_dephasing"] = st.column_int(10) != 0;
     j["quality"] = json::parse(st.column_text(11), nullptr, false);
     j["combined_with"] = st.column_is_null(12) ? json(nullptr) : json(st.column_int(12));
+    j["cooldown"] = st.column_int(13);
     fits.push_back(std::move(j));
   }
   if (rc != SQLITE_DONE) return error_reply(Reason::storage_error, control_db_.error("listing fits").message);
@@ -864,7 +877,7 @@ json LiveAnalysis::verdict_reply(const json& request) {
   store::Statement st;
   if (auto s = store::Statement::prepare(
           control_db_,
-          "SELECT v.verdict_json FROM verdicts v JOIN samples sm ON sm.id = v.sample_id"
+          "SELECT v.verdict_json, v.cooldown FROM verdicts v JOIN samples sm ON sm.id = v.sample_id"
           " WHERE sm.name = ?1 ORDER BY v.t DESC, v.sweep_index DESC LIMIT 1",
           st);
       !s) {
@@ -879,6 +892,8 @@ json LiveAnalysis::verdict_reply(const json& request) {
     const int rc = st.step();
     if (rc == SQLITE_ROW) {
       j = json::parse(st.column_text(0), nullptr, false);
+      // A verdict stored before cooldowns were counted has the column's.
+      if (j.is_object() && !j.contains("cooldown")) j["cooldown"] = st.column_int(1);
     } else if (rc != SQLITE_DONE) {
       return error_reply(Reason::storage_error, control_db_.error("reading the verdict").message);
     }

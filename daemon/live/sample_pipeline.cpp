@@ -50,7 +50,8 @@ bool FitRecord::operator==(const FitRecord& o) const {
          error == o.error && model == o.model && lphi_m == o.lphi_m && lphi_err_m == o.lphi_err_m &&
          chi2_red == o.chi2_red && converged == o.converged && flags == o.flags &&
          temperature_k == o.temperature_k && temperature_spread_k == o.temperature_spread_k &&
-         temperature_run == o.temperature_run && temperature_unstable == o.temperature_unstable &&
+         temperature_run == o.temperature_run && cooldown == o.cooldown &&
+         temperature_unstable == o.temperature_unstable &&
          sigma0_s == o.sigma0_s && sigma0_err_s == o.sigma0_err_s &&
          used_in_dephasing == o.used_in_dephasing && quality == o.quality && result == o.result &&
          t_s == o.t_s;
@@ -87,6 +88,7 @@ std::string validate(const SampleSettings& s) {
   if (s.fit_window_t && !positive_finite(*s.fit_window_t)) return "fit_window_t must be positive";
   if (s.probe_length_m && !positive_finite(*s.probe_length_m)) return "probe_length_m must be positive";
   if (s.max_queued_sweeps < 1) return "max_queued_sweeps must be at least 1";
+  if (!positive_finite(s.new_cooldown_above_k)) return "new_cooldown_above_k must be a positive temperature";
   if (auto e = align::validate(s.aligner); !e.empty()) return e;
   if (auto e = segment::validate(s.segmenter); !e.empty()) return e;
   return "";
@@ -101,6 +103,7 @@ nlohmann::json no_data_verdict_json() {
   j["updated_at"] = nullptr;
   j["evidence"] = nlohmann::json::object();
   j["n_fits"] = 0;
+  j["cooldown"] = nullptr;
   return j;
 }
 
@@ -119,6 +122,7 @@ void SamplePipeline::push(const align::LockinReading& r) {
 
 void SamplePipeline::push(const align::TemperatureReading& r) {
   if (!error_.empty()) return;
+  note_temperature(r);
   aligner_.push(r, scratch_);
   take(scratch_);
 }
@@ -134,8 +138,52 @@ void SamplePipeline::take(std::vector<align::AlignedPoint>& points) {
   segmenter_.push(std::span<const align::AlignedPoint>(points), segmented_);
   points.clear();
   segmented_.plateaus.clear();  // plateaus matter through each sweep's temperature run
-  for (auto& s : segmented_.sweeps) queue_.push_back(std::move(s));
+  for (auto& s : segmented_.sweeps) enqueue(std::move(s));
   segmented_.sweeps.clear();
+}
+
+void SamplePipeline::note_temperature(const align::TemperatureReading& r) {
+  if (!std::isfinite(r.temperature_k)) return;  // the aligner counts it
+  const double threshold = settings_.new_cooldown_above_k;
+  if (r.temperature_k <= threshold) above_since_s_.reset();
+  if (r.temperature_k < 0.5 * threshold) {
+    cooled_ = true;
+  } else if (cooled_ && r.temperature_k > threshold) {
+    // A warm-up lasts: readings above the threshold for warmup_min_s. One
+    // wild reading (an open thermometer lead reads hundreds of kelvin) is
+    // not a thermal cycle.
+    if (!above_since_s_) above_since_s_ = r.t_s;
+    if (r.t_s - *above_since_s_ >= warmup_min_s) {
+      cooled_ = false;
+      if (warmups_.size() == max_warmups) warmups_.pop_front();
+      warmups_.push_back(*above_since_s_);
+      above_since_s_.reset();
+    }
+  }
+}
+
+// A sweep is emitted once the thermometer readings around its points were
+// pushed (the aligner interpolates between readings on each side), so every
+// warm-up before its start is known by then.
+void SamplePipeline::enqueue(segment::Sweep&& sweep) {
+  bool warmed = false;
+  while (!warmups_.empty() && warmups_.front() <= sweep.t_start_s) {
+    warmed = warmed || cooldown_ == 0 || warmups_.front() > last_sweep_start_s_;
+    warmups_.pop_front();
+  }
+  if (cooldown_ == 0) {
+    cooldown_ = 1;  // a warm-up before the first sweep is the cooldown's start
+  } else if (warmed) {
+    ++cooldown_;
+  }
+  last_sweep_start_s_ = sweep.t_start_s;
+  sweep_cooldown_[sweep.index] = cooldown_;
+  queue_.push_back(std::move(sweep));
+}
+
+std::int64_t SamplePipeline::cooldown_of(const segment::Sweep& sweep) const {
+  const auto it = sweep_cooldown_.find(sweep.index);
+  return it != sweep_cooldown_.end() ? it->second : cooldown_;
 }
 
 void SamplePipeline::process(PipelineOutput& out, std::size_t max_sweeps) {
@@ -152,7 +200,7 @@ void SamplePipeline::finish(PipelineOutput& out) {
   take(scratch_);
   segmenter_.finish(segmented_);
   segmented_.plateaus.clear();
-  for (auto& s : segmented_.sweeps) queue_.push_back(std::move(s));
+  for (auto& s : segmented_.sweeps) enqueue(std::move(s));
   segmented_.sweeps.clear();
   process(out);
   if (waiting_) {
@@ -167,7 +215,7 @@ void SamplePipeline::handle(segment::Sweep&& sweep, PipelineOutput& out) {
   out.sweeps.push_back(describe(sweep));
   if (!settings_.combine_up_down) return fit_and_record({&sweep}, out);
   if (waiting_ && !sweep.temperature_unstable && waiting_->temperature_run == sweep.temperature_run &&
-      waiting_->direction != sweep.direction) {
+      cooldown_of(*waiting_) == cooldown_of(sweep) && waiting_->direction != sweep.direction) {
     segment::Sweep first = std::move(*waiting_);
     waiting_.reset();
     return fit_and_record({&first, &sweep}, out);
@@ -192,6 +240,7 @@ SweepRecord SamplePipeline::describe(const segment::Sweep& s) const {
   r.n_points = s.points.size();
   r.temperature = s.temperature;
   r.temperature_run = static_cast<std::int64_t>(s.temperature_run);
+  r.cooldown = cooldown_of(s);
   r.temperature_unstable = s.temperature_unstable;
   r.truncated = s.truncated;
   double sum_abs_x = 0.0;
@@ -324,8 +373,10 @@ void SamplePipeline::fit_and_record(std::vector<const segment::Sweep*> sweeps, P
   rec.temperature_k = temperature.mean_k;
   rec.temperature_spread_k = temperature.std_k;
   rec.temperature_run = last.temperature_run;
+  rec.cooldown = last.cooldown;
   rec.temperature_unstable = unstable;
   rec.t_s = last.t_end_s;
+  for (const auto* s : sweeps) sweep_cooldown_.erase(s->index);
   fits_.push_back(rec);
   out.fits.push_back(rec);
   update_zero_field(rec, out);
@@ -339,12 +390,14 @@ void SamplePipeline::fit_and_record(std::vector<const segment::Sweep*> sweeps, P
 void SamplePipeline::update_zero_field(const FitRecord& fit, PipelineOutput& out) {
   if (!fit.sigma0_s || fit.temperature_unstable || !std::isfinite(*fit.sigma0_s)) return;
   auto& p = zero_field_[fit.temperature_run];
+  p.cooldown = fit.cooldown;
   p.sigma_s.push_back(*fit.sigma0_s);
   p.sigma_err_s.push_back(fit.sigma0_err_s.value_or(0.0));
   p.temperature_k.push_back(fit.temperature_k);
   p.t_s = fit.t_s;
   ZeroFieldRecord r;
   r.temperature_run = fit.temperature_run;
+  r.cooldown = fit.cooldown;
   r.n_sweeps = p.sigma_s.size();
   r.t_s = p.t_s;
   const double n = static_cast<double>(r.n_sweeps);
@@ -376,7 +429,10 @@ VerdictRecord SamplePipeline::assess(const FitRecord& trigger) const {
   double sum_rsq = 0.0;
   std::size_t n_rsq = 0;
   const FitRecord* coldest = nullptr;
+  std::size_t n_fits = 0;  // of this cooldown
   for (const auto& f : fits_) {
+    if (f.cooldown != trigger.cooldown) continue;
+    ++n_fits;
     if (!f.used_in_dephasing) continue;
     points.push_back({f.temperature_k, f.lphi_m, f.lphi_err_m});
     if (f.sigma0_s && *f.sigma0_s > 0.0) {
@@ -404,6 +460,7 @@ VerdictRecord SamplePipeline::assess(const FitRecord& trigger) const {
 
   std::vector<thermometry::ZeroFieldPoint> sigma0;
   for (const auto& [run, p] : zero_field_) {
+    if (p.cooldown != trigger.cooldown) continue;
     const double n = static_cast<double>(p.sigma_s.size());
     double sum = 0.0, sum_t = 0.0, sum_err = 0.0, ss = 0.0;
     for (std::size_t i = 0; i < p.sigma_s.size(); ++i) {
@@ -429,6 +486,7 @@ VerdictRecord SamplePipeline::assess(const FitRecord& trigger) const {
 
   VerdictRecord r;
   r.sweep_index = trigger.sweep_index;
+  r.cooldown = trigger.cooldown;
   r.t_s = trigger.t_s;
   r.state = std::string(dephasing::state_name(v.state));
   r.electrons_cooling = v.electrons_cooling;
@@ -452,7 +510,8 @@ VerdictRecord SamplePipeline::assess(const FitRecord& trigger) const {
   j["regime"] = r.regime ? nlohmann::json(*r.regime) : nlohmann::json(nullptr);
   j["updated_at"] = r.t_s;
   j["sweep_index"] = r.sweep_index;
-  j["n_fits"] = fits_.size();
+  j["cooldown"] = r.cooldown;
+  j["n_fits"] = n_fits;
   j["n_zero_field_points"] = sigma0.size();
   const auto& e = v.evidence;
   j["evidence"] = {{"t_sat_k", optional_json(e.t_sat_k)},

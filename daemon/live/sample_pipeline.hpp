@@ -46,6 +46,20 @@
 // except after the last of them (the one the caller needs); the per-update
 // history is already stored.
 //
+// Cooldowns. A sample is measured over weeks and may be warmed up and cooled
+// again (to fix the filtering of the lines, say); thermal cycling can change
+// its disorder, so each cooldown is analysed on its own. A warm-up is a
+// thermometer readings above new_cooldown_above_k for at least warmup_min_s
+// (60 s; a single wild reading is not a thermal cycle) after the sample was
+// below half of it (the hysteresis keeps a temperature hovering around the
+// threshold from counting again and again); it dates from its first reading
+// above the threshold. The first sweep belongs to
+// cooldown 1; a sweep that starts after a warm-up that came after the
+// previous sweep's start belongs to the next cooldown. L_phi(T), the
+// sigma(0) thermometer, the regime and the verdict use the fits of the
+// triggering fit's cooldown only. The cooldown is, like the temperature
+// run, recomputed from the readings on every start, never stored as input.
+//
 // Bounded: at most max_queued_sweeps completed sweeps wait for their fit;
 // the caller must stop pushing readings while full() (push() then refuses
 // nothing, but the queue would grow: the caller's discipline, checked by
@@ -93,6 +107,9 @@ struct SampleSettings {
   checks::LockinOptions lockin;
   checks::FitQualityOptions quality;
   std::size_t max_queued_sweeps = 4;
+  // A thermometer reading above this, after one below half of it, starts a
+  // new cooldown for the sweeps that follow (see Cooldowns above).
+  double new_cooldown_above_k = 30.0;
 };
 
 // Empty when usable, else what is wrong (naming the setting).
@@ -109,6 +126,7 @@ struct SweepRecord {
   std::size_t n_points = 0;
   segment::TemperatureStats temperature;
   std::int64_t temperature_run = 0;
+  std::int64_t cooldown = 1;           // 1, 2, ...: see Cooldowns above
   bool temperature_unstable = false;
   bool truncated = false;
   std::size_t n_overload = 0;          // the instrument's flag, or |X|,|Y| >= range
@@ -130,6 +148,7 @@ struct FitRecord {
   std::vector<std::string> flags;
   double temperature_k = 0.0, temperature_spread_k = 0.0;
   std::int64_t temperature_run = 0;
+  std::int64_t cooldown = 1;         // the (later) sweep's
   bool temperature_unstable = false;
   std::optional<double> sigma0_s, sigma0_err_s;  // when the sweep could be prepared
   bool used_in_dephasing = false;
@@ -142,6 +161,7 @@ struct FitRecord {
 
 struct ZeroFieldRecord {
   std::int64_t temperature_run = 0;
+  std::int64_t cooldown = 1;
   double temperature_k = 0.0;
   double sigma_s = 0.0, sigma_err_s = 0.0;
   std::size_t n_sweeps = 0;
@@ -151,6 +171,7 @@ struct ZeroFieldRecord {
 
 struct VerdictRecord {
   std::int64_t sweep_index = 0;      // the sweep whose fit triggered the update
+  std::int64_t cooldown = 1;         // whose fits it judged
   double t_s = 0.0;
   std::string state;                 // dephasing::state_name
   std::optional<bool> electrons_cooling;
@@ -198,6 +219,8 @@ class SamplePipeline {
   const align::AlignmentCounts& alignment_counts() const { return aligner_.counts(); }
   const segment::SegmentCounts& segment_counts() const { return segmenter_.counts(); }
   std::size_t sweeps_seen() const { return sweeps_seen_; }
+  // The cooldown of the latest sweep segmented (0 before the first).
+  std::int64_t cooldown() const { return cooldown_; }
   std::size_t fits_done() const { return fits_.size(); }
   std::size_t fits_reused() const { return fits_reused_; }
   const std::vector<FitRecord>& fits() const { return fits_; }
@@ -205,6 +228,9 @@ class SamplePipeline {
 
  private:
   void take(std::vector<align::AlignedPoint>& points);
+  void note_temperature(const align::TemperatureReading& r);
+  void enqueue(segment::Sweep&& sweep);
+  std::int64_t cooldown_of(const segment::Sweep& sweep) const;
   SweepRecord describe(const segment::Sweep& sweep) const;
   FitRecord fit_points(const std::vector<const segment::Sweep*>& sweeps, const SweepRecord& last);
   void fit_and_record(std::vector<const segment::Sweep*> sweeps, PipelineOutput& out);
@@ -225,9 +251,21 @@ class SamplePipeline {
   struct PlateauSigma {
     std::vector<double> sigma_s, sigma_err_s, temperature_k;
     double t_s = 0.0;
+    std::int64_t cooldown = 1;
   };
   std::map<std::int64_t, PlateauSigma> zero_field_;
   std::optional<VerdictRecord> last_verdict_;
+  // Cooldowns: warm-ups not yet passed by a sweep's start (event times,
+  // bounded by max_warmups), whether the sample has been below half the
+  // threshold since the last one, and each queued sweep's cooldown.
+  static constexpr std::size_t max_warmups = 256;
+  static constexpr double warmup_min_s = 60.0;
+  std::deque<double> warmups_;
+  bool cooled_ = false;
+  std::optional<double> above_since_s_;  // first reading of the current run above the threshold
+  std::int64_t cooldown_ = 0;
+  double last_sweep_start_s_ = 0.0;
+  std::map<std::size_t, std::int64_t> sweep_cooldown_;
   std::size_t sweeps_seen_ = 0;
   std::size_t fits_reused_ = 0;
 };

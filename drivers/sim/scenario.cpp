@@ -68,12 +68,16 @@ std::string scenario_error(const Scenario& s) {
   for (const auto& e : f.excursions)
     if (!non_negative(e.start_s) || !positive(e.duration_s) || !positive(e.amplitude_k))
       return "fault temperature-excursion: start_s >= 0, duration_s > 0 and amplitude_k > 0 are needed";
+  for (const auto& w : f.open_contacts)
+    if (!non_negative(w.start_s) || !positive(w.duration_s))
+      return "fault open-contact: start_s >= 0 and duration_s > 0 are needed";
   for (const auto& r : f.resets)
     if (!non_negative(r.at_s) || !non_negative(r.period_s))
       return "fault connection-reset: at_s and period_s must be >= 0";
-  if (f.heating && (!non_negative(f.heating_start_s) || !positive(f.heating_floor_k) ||
-                    !positive(f.heating_exponent)))
-    return "fault electron-heating: start_s >= 0, floor_k > 0 and exponent > 0 are needed";
+  if (f.heating && (!non_negative(f.heating_start_s) || !non_negative(f.heating_duration_s) ||
+                    !positive(f.heating_floor_k) || !positive(f.heating_exponent)))
+    return "fault electron-heating: start_s >= 0, duration_s >= 0 (0: to the end), floor_k > 0 and "
+           "exponent > 0 are needed";
   for (int p : s.ports)
     if (p < 0 || p > 65535) return "ports: a port must be 0..65535";
   return {};

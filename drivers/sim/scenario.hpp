@@ -97,9 +97,13 @@ struct Faults {
   std::vector<Range> ranges;
   std::vector<Pickup> pickups;
   std::vector<Excursion> excursions;
+  // An open contact (a lifted bond or a broken current lead): no current
+  // flows through the sample, so the lock-in reads only its noise floor.
+  std::vector<Window> open_contacts;
   std::vector<Reset> resets;
   bool heating = false;                 // electron heating from heating_start_s on
   double heating_start_s = 0.0;
+  double heating_duration_s = 0.0;      // 0: until the end (the filtering is never fixed)
   double heating_floor_k = 0.0;
   double heating_exponent = 2.0;
 };

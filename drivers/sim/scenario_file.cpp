@@ -202,10 +202,11 @@ void read_fault(Reader& r, const toml::table& t, Faults& f) {
     }
     f.resets.push_back(reset);
   } else if (kind == "electron-heating") {
-    r.known_keys(t, "fault.", {"kind", "start_s", "floor_k", "exponent"});
+    r.known_keys(t, "fault.", {"kind", "start_s", "duration_s", "floor_k", "exponent"});
     if (f.heating) r.fail(t.source(), "only one electron-heating fault is allowed");
     f.heating = true;
     r.number(t, "start_s", "fault.", f.heating_start_s);
+    r.number(t, "duration_s", "fault.", f.heating_duration_s);
     r.number(t, "floor_k", "fault.", f.heating_floor_k);
     r.number(t, "exponent", "fault.", f.heating_exponent);
   } else if (kind == "lockin-range") {
@@ -229,9 +230,16 @@ void read_fault(Reader& r, const toml::table& t, Faults& f) {
     r.number(t, "duration_s", "fault.", w.duration_s);
     r.number(t, "amplitude_k", "fault.", w.amplitude_k);
     f.excursions.push_back(w);
+  } else if (kind == "open-contact") {
+    r.known_keys(t, "fault.", {"kind", "start_s", "duration_s"});
+    Faults::Window w;
+    r.number(t, "start_s", "fault.", w.start_s);
+    r.number(t, "duration_s", "fault.", w.duration_s);
+    f.open_contacts.push_back(w);
   } else {
     r.fail(t.source(), "'fault.kind' must be lockin-dropout, thermometer-stuck, connection-reset, "
-                       "electron-heating, lockin-range, quadrature-pickup or temperature-excursion "
+                       "electron-heating, lockin-range, quadrature-pickup, temperature-excursion or "
+                       "open-contact "
                        "(got '" + kind + "')");
   }
 }

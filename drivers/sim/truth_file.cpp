@@ -44,6 +44,7 @@ std::string scenario_record(const Scenario& s) {
                  {"time_constant_s", s.lockin.time_constant_s}};
   j["heating"] = {{"on", s.faults.heating},
                   {"start_s", s.faults.heating_start_s},
+                  {"duration_s", s.faults.heating_duration_s},
                   {"floor_k", s.faults.heating_floor_k},
                   {"exponent", s.faults.heating_exponent}};
   j["noise"] = {{"sample_interval_s", s.noise.sample_interval_s},

@@ -110,7 +110,15 @@ double World::quadrature_fraction(double t_s) const {
 }
 
 bool World::heating_at(double t_s) const {
-  return scenario_.faults.heating && t_s >= scenario_.faults.heating_start_s;
+  const Faults& f = scenario_.faults;
+  if (!f.heating || t_s < f.heating_start_s) return false;
+  return f.heating_duration_s <= 0.0 || t_s < f.heating_start_s + f.heating_duration_s;
+}
+
+bool World::open_contact_at(double t_s) const {
+  for (const Faults::Window& w : scenario_.faults.open_contacts)
+    if (w.contains(t_s)) return true;
+  return false;
 }
 
 double World::electron_temperature_k(double t_s) const {
@@ -131,6 +139,7 @@ double World::sigma0_s(double t_s) const {
 }
 
 double World::true_x_v(double t_s) const {
+  if (open_contact_at(t_s)) return 0.0;  // no current: only the noise added in lockin()
   const LockinSettings& l = scenario_.lockin;
   return lockin_x_v(1.0 / sheet_conductance_s(t_s), scenario_.sample.squares, l.current_a, l.gain);
 }

@@ -84,6 +84,7 @@ class World {
   double bath_temperature_k(double t_s) const;
   double electron_temperature_k(double t_s) const;
   bool heating_at(double t_s) const;
+  bool open_contact_at(double t_s) const;  // an open-contact fault's window holds t
   double sheet_conductance_s(double t_s) const;   // at the magnet's field
   double sigma0_s(double t_s) const;              // at B = 0
   double true_x_v(double t_s) const;

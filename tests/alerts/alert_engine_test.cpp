@@ -221,6 +221,60 @@ TEST_F(Engine, VerdictRules) {
   EXPECT_TRUE(e->list(false).empty());
 }
 
+// Messages name a sweep by the index `lphi sweeps` lists (from 0), not by
+// its row id in the database (from 1); the context keeps both.
+TEST_F(Engine, MessagesNameTheSweepIndexPeopleSee) {
+  auto e = make_engine(db);
+  FitFact failed = good_fit(8, 100.0);  // row id 8, index 7
+  ASSERT_EQ(failed.sweep_index, 7);
+  failed.ok = false;
+  failed.error = "the sweep could not be prepared";
+  e->on_fit(failed);
+  SweepFact overloaded = good_sweep(8, 100.0);
+  overloaded.n_overload = 12;
+  e->on_sweep(overloaded);
+  for (const char* rule : {"fit-failed", "lockin-overload"}) {
+    auto a = find_rule(e->list(false), rule);
+    ASSERT_TRUE(a) << rule;
+    EXPECT_NE(a->message.find("sweep 7"), std::string::npos) << a->message;
+    EXPECT_EQ(a->message.find("sweep 8"), std::string::npos) << a->message;
+    EXPECT_EQ(a->context["sweep_index"], 7) << rule;
+    EXPECT_EQ(a->context["sweep_id"], 8) << rule;
+  }
+}
+
+// A new cooldown's verdicts judge the rules afresh: insufficient-data
+// clears verdict-saturated (clear_after 2); a null electrons_cooling keeps
+// electrons-not-cooling (no evidence either way), true clears it. The
+// cooldown is in the context and the message.
+TEST_F(Engine, ANewCooldownClearsTheVerdictAlertsOfTheLastOne) {
+  auto e = make_engine(db);
+  VerdictFact hot{"film", 100.0, "saturated", false, "electron-heating-or-noise", 0.06, 1e-6};
+  hot.cooldown = 1;
+  e->on_verdict(hot);
+  auto saturated = find_rule(e->list(false), "verdict-saturated");
+  ASSERT_TRUE(saturated);
+  EXPECT_EQ(saturated->context["cooldown"], 1);
+  EXPECT_NE(saturated->message.find("cooldown 1"), std::string::npos) << saturated->message;
+  VerdictFact fresh{"film", 200.0, "insufficient-data", std::nullopt, std::nullopt, std::nullopt, std::nullopt};
+  fresh.cooldown = 2;
+  e->on_verdict(fresh);
+  fresh.t = 300.0;
+  e->on_verdict(fresh);
+  EXPECT_FALSE(find_rule(e->list(false), "verdict-saturated"));
+  EXPECT_TRUE(find_rule(e->list(false), "electrons-not-cooling")) << "null is no evidence";
+  VerdictFact cool{"film", 400.0, "power-law", true, std::nullopt, std::nullopt, std::nullopt};
+  cool.cooldown = 2;
+  e->on_verdict(cool);
+  EXPECT_TRUE(find_rule(e->list(false), "electrons-not-cooling")) << "clear_after = 2";
+  cool.t = 500.0;
+  e->on_verdict(cool);
+  EXPECT_TRUE(e->list(false).empty());
+  auto cleared = find_rule(e->list(true), "electrons-not-cooling");
+  ASSERT_TRUE(cleared);
+  EXPECT_EQ(cleared->cleared_at, std::optional<double>(500.0));
+}
+
 TEST_F(Engine, HealthRules) {
   AlertConfig c;
   c.source_silent.silent_s = 30.0;

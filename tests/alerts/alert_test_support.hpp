@@ -28,6 +28,7 @@ inline FitFact good_fit(std::int64_t sweep, double t, std::string sample = "film
   FitFact f;
   f.sample = std::move(sample);
   f.sweep_id = sweep;
+  f.sweep_index = sweep - 1;  // as lphid stores them: row ids from 1, indices from 0
   f.t = t;
   f.ok = true;
   f.converged = true;
@@ -42,6 +43,7 @@ inline SweepFact good_sweep(std::int64_t sweep, double t, std::string sample = "
   SweepFact f;
   f.sample = std::move(sample);
   f.sweep_id = sweep;
+  f.sweep_index = sweep - 1;
   f.t = t;
   f.temperature_k = 0.1;
   f.temperature_spread_k = 1e-4;

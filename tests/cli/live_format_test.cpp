@@ -56,6 +56,29 @@ TEST(LiveFormat, FitsTableShowsReadableUnitsAndDashesForNull) {
   EXPECT_EQ(std::count(text.begin(), text.end(), '\n'), 3);
 }
 
+// The cooldown a sweep, fit or verdict belongs to is shown beside its
+// index: the second column of the tables, a row of the verdict.
+TEST(LiveFormat, TablesShowTheCooldown) {
+  const json sweeps = json::parse(R"([{"sample":"film-a","cooldown":2,"index":14,"direction":"up",
+    "t_start":1e9,"t_end":1.000001e9,"n_points":998,"temperature_k":0.3,"fitted":true}])");
+  std::ostringstream out;
+  lphi::client::print_sweeps_table(sweeps, out);
+  const std::string text = out.str();
+  const std::string first_line = text.substr(0, text.find('\n'));
+  EXPECT_THAT(first_line, HasSubstr("sample  cooldown  sweep"));
+  EXPECT_THAT(text, HasSubstr("film-a  2         14"));
+  const json fits = json::parse(R"([{"sample":"film-a","cooldown":2,"sweep_index":14,"temperature_k":0.3,
+    "ok":true,"used_in_dephasing":true}])");
+  std::ostringstream f;
+  lphi::client::print_fits_table(fits, f);
+  EXPECT_THAT(f.str(), HasSubstr("film-a  2         14"));
+  const json verdicts = json::parse(R"([{"sample":"film-a","state":"power-law","cooldown":2}])");
+  std::ostringstream v;
+  lphi::client::print_verdicts(verdicts, v);
+  EXPECT_THAT(v.str(), ::testing::ContainsRegex("cooldown +2\n"));
+  EXPECT_THAT(event_line("verdict", verdicts[0]), HasSubstr(", cooldown 2"));
+}
+
 TEST(LiveFormat, VerdictAndAlertsAndEvents) {
   const json verdicts = json::parse(R"([{"sample":"film-a","state":"saturated","exponent_p":1.02,
     "exponent_p_err":0.05,"lphi_sat_m":1.2e-6,"lphi_sat_err_m":5e-8,"t_sat_k":0.08,"t_sat_err_k":0.01,

@@ -12,6 +12,7 @@
 #include <zmq.hpp>
 
 #include "daemon/config/data_dir.hpp"
+#include "../support/text_file.hpp"
 
 extern char** environ;
 
@@ -81,12 +82,6 @@ int wait_for(pid_t pid, std::chrono::milliseconds timeout) {
   return -1;
 }
 
-std::string slurp(const std::string& path) {
-  std::ifstream in(path);
-  std::ostringstream s;
-  s << in.rdbuf();
-  return s.str();
-}
 
 }  // namespace
 
@@ -153,8 +148,8 @@ RunResult run_program(const std::vector<std::string>& args, const std::string& s
   RunResult r;
   const pid_t pid = spawn(args, stdin_path, out_name, err_name);
   if (pid > 0) r.exit_code = wait_for(pid, timeout);
-  r.out = slurp(out_name);
-  r.err = slurp(err_name);
+  r.out = read_text_file(out_name);
+  r.err = read_text_file(err_name);
   ::unlink(out_name);
   ::unlink(err_name);
   return r;

@@ -3,6 +3,7 @@
 #include <gtest/gtest.h>
 
 #include <fstream>
+#include <limits>
 
 #include "daemon/config/config.hpp"
 #include "daemon/config/data_dir.hpp"
@@ -36,6 +37,7 @@ TEST(LiveConfig, AnalysisKeysReachThePipelineSettings) {
                            "probe_length_m = 5e-6\n"
                            "fit_window_t = 0.2\n"
                            "excitation_ratio_max = 0.5\n"
+                           "new_cooldown_above_k = 4.0\n"
                            "[daemon]\nevents_endpoint = \"tcp://127.0.0.1:5999\"\n";
   Config c;
   const auto errors = parse_config(text, c);
@@ -56,6 +58,7 @@ TEST(LiveConfig, AnalysisKeysReachThePipelineSettings) {
   EXPECT_EQ(s.probe_length_m, std::optional<double>(5e-6));
   EXPECT_EQ(s.fit_window_t, std::optional<double>(0.2));
   EXPECT_EQ(s.heating.max_ratio, 0.5);
+  EXPECT_EQ(s.new_cooldown_above_k, 4.0);
   EXPECT_EQ(s.gain, 1.0);  // no gain given: no preamplifier
   EXPECT_EQ(lphi::live::validate(s), "");
 }
@@ -75,6 +78,25 @@ TEST(LiveConfig, DefaultsAreTheAnalysisOptionDefaults) {
   EXPECT_EQ(s.aligner.max_age_field_s, al.max_age_field_s);
   EXPECT_EQ(s.aligner.max_hold_s, al.max_hold_s);
   EXPECT_FALSE(s.combine_up_down);
+  EXPECT_EQ(s.new_cooldown_above_k, lphi::live::SampleSettings{}.new_cooldown_above_k);
+}
+
+TEST(LiveConfig, ANewCooldownThresholdMustBeAPositiveTemperature) {
+  for (const char* bad : {"0.0", "-4.0", "\"warm\""}) {
+    Config c;
+    const auto errors = parse_config(std::string(sources) + "new_cooldown_above_k = " + bad + "\n", c);
+    bool named = false;
+    for (const auto& e : errors) named = named || (e.key == "sample[0].new_cooldown_above_k" && e.line == 20);
+    EXPECT_TRUE(named) << bad;
+  }
+  // The pipeline refuses what the config would not give it.
+  lphi::live::SampleSettings s;
+  s.name = "s";
+  s.excitation_a = 1e-9;
+  s.geometry.squares = 1.0;
+  ASSERT_EQ(lphi::live::validate(s), "");
+  s.new_cooldown_above_k = std::numeric_limits<double>::infinity();
+  EXPECT_NE(lphi::live::validate(s).find("new_cooldown_above_k"), std::string::npos);
 }
 
 TEST(LiveConfig, MistakesNameLineAndKey) {

@@ -313,3 +313,166 @@ TEST(SamplePipeline, UnpreparableSweepsFailWithAReason) {
 }
 
 }  // namespace
+
+namespace {
+
+// Two cooldowns of one sample in one stream of readings: `first` (t0 as
+// planned), then the thermometer at 40 K for 100 s (warmed up; lock-in and
+// magnet not read meanwhile), then `second` from 200 s after the first ended.
+Cooldown thermal_cycle(const CooldownPlan& first, CooldownPlan second, std::size_t& first_sweeps) {
+  Cooldown a = lphi::live::testing::make_cooldown(first);
+  const double warm_from = a.lockin.back().t_s + 1.0;
+  second.t0_s = warm_from + 200.0;
+  const Cooldown b = lphi::live::testing::make_cooldown(second);
+  first_sweeps = a.sweep_temperature_k.size();
+  for (double t = warm_from; t < warm_from + 100.0; t += 1.0) a.thermometer.push_back({t, 40.0});
+  a.lockin.insert(a.lockin.end(), b.lockin.begin(), b.lockin.end());
+  a.field.insert(a.field.end(), b.field.begin(), b.field.end());
+  a.thermometer.insert(a.thermometer.end(), b.thermometer.begin(), b.thermometer.end());
+  a.sweep_temperature_k.insert(a.sweep_temperature_k.end(), b.sweep_temperature_k.begin(),
+                               b.sweep_temperature_k.end());
+  return a;
+}
+
+CooldownPlan saturating_plan() {
+  CooldownPlan plan;
+  plan.plateaus_k = {1.0, 0.7, 0.5, 0.35, 0.25, 0.18, 0.13, 0.1, 0.07, 0.05};
+  plan.lsat_m = 200e-9;
+  return plan;
+}
+
+}  // namespace
+
+// A warm-up above new_cooldown_above_k between two cooldowns: the second's
+// sweeps, fits, sigma(0) points and verdicts are cooldown 2 and its L_phi(T)
+// leaves the first cooldown's saturated sweeps out. The truths: the first
+// cooldown saturates (L_sat = 200 nm), the second follows T^-1/2 (p = 1).
+TEST(SamplePipeline, AWarmUpStartsANewCooldownAnalysedOnItsOwn) {
+  CooldownPlan second;
+  second.plateaus_k = {1.0, 0.7, 0.5, 0.35, 0.25, 0.18};
+  std::size_t n_first = 0;
+  const Cooldown data = thermal_cycle(saturating_plan(), second, n_first);
+  SampleSettings settings = settings_for(second);
+  settings.new_cooldown_above_k = 30.0;
+  const PipelineRun r = run_all(second, data, settings);
+  ASSERT_EQ(r.all.sweeps.size(), data.sweep_temperature_k.size());
+  ASSERT_EQ(r.all.fits.size(), data.sweep_temperature_k.size());
+  for (std::size_t i = 0; i < r.all.sweeps.size(); ++i) {
+    const std::int64_t expected = i < n_first ? 1 : 2;
+    EXPECT_EQ(r.all.sweeps[i].cooldown, expected) << "sweep " << i;
+    EXPECT_EQ(r.all.fits[i].cooldown, expected) << "fit " << i;
+  }
+  const double second_start_s = r.all.sweeps[n_first].t_start_s;
+  for (const auto& z : r.all.zero_field) EXPECT_EQ(z.cooldown, z.t_s > second_start_s ? 2 : 1) << z.t_s;
+  ASSERT_EQ(r.all.verdicts.size(), r.all.fits.size());
+  // The first cooldown's last verdict: its own sweeps, saturating or saturated.
+  const auto& end_first = r.all.verdicts[n_first - 1];
+  EXPECT_EQ(end_first.cooldown, 1);
+  EXPECT_EQ(end_first.n_points, n_first);
+  EXPECT_TRUE(end_first.state == "saturated" || end_first.state == "saturating") << end_first.json.dump(1);
+  // The second cooldown's first verdict has one fit: too little for L_phi(T).
+  EXPECT_EQ(r.all.verdicts[n_first].cooldown, 2);
+  EXPECT_EQ(r.all.verdicts[n_first].state, "insufficient-data");
+  EXPECT_EQ(r.all.verdicts[n_first].json.at("n_fits").get<std::size_t>(), 1u);
+  const auto& v = r.all.verdicts.back();
+  EXPECT_EQ(v.cooldown, 2);
+  EXPECT_EQ(v.json.at("cooldown").get<std::int64_t>(), 2);
+  EXPECT_EQ(v.n_points, data.sweep_temperature_k.size() - n_first);
+  EXPECT_EQ(v.json.at("n_zero_field_points").get<std::size_t>(), second.plateaus_k.size());
+  EXPECT_EQ(v.state, "power-law") << v.json.dump(1);
+  ASSERT_TRUE(v.exponent_p.has_value());
+  // p within 3 of its standard errors of the second cooldown's truth.
+  EXPECT_NEAR(*v.exponent_p, second.p, 3.0 * v.json.at("exponent_p_err").get<double>());
+  EXPECT_EQ(v.electrons_cooling, std::optional<bool>(true));
+  // Each zero-field point belongs to the cooldown of its plateau's sweeps.
+  std::size_t second_points = 0;
+  for (const auto& z : r.all.zero_field) second_points += z.cooldown == 2 ? 1 : 0;
+  EXPECT_GE(second_points, second.plateaus_k.size());
+
+  // The same readings with the threshold above the warm-up: one cooldown,
+  // and its L_phi(T) takes every sweep.
+  settings.new_cooldown_above_k = 100.0;
+  const PipelineRun one = run_all(second, data, settings);
+  for (const auto& s : one.all.sweeps) EXPECT_EQ(s.cooldown, 1);
+  EXPECT_EQ(one.all.verdicts.back().n_points, data.sweep_temperature_k.size());
+}
+
+// Only a warm-up from below half the threshold counts: with the threshold
+// at 0.9 K, plateaus at 0.7, 1.0, 0.7, 1.0 K cross it twice without ever
+// cooling below 0.45 K (one cooldown); after the plateau at 0.4 K the next
+// 1.0 K is a new one. Readings at 0.1 K and then 50 K for 90 s before the
+// first sweep (a recording that starts with a warm-up, long enough to
+// count) do not make the first sweep's cooldown 2: the first sweep is
+// cooldown 1.
+TEST(SamplePipeline, OnlyAWarmUpFromBelowHalfTheThresholdCounts) {
+  CooldownPlan plan;
+  plan.plateaus_k = {0.7, 1.0, 0.7, 1.0, 0.4, 1.0};
+  Cooldown data = lphi::live::testing::make_cooldown(plan);
+  std::vector<lphi::align::TemperatureReading> before;
+  for (double t = plan.t0_s - 200.0; t < plan.t0_s - 10.0; t += 1.0)
+    before.push_back({t, t < plan.t0_s - 100.0 ? 0.1 : 50.0});
+  data.thermometer.insert(data.thermometer.begin(), before.begin(), before.end());
+  SampleSettings settings = settings_for(plan);
+  settings.new_cooldown_above_k = 0.9;
+  const PipelineRun r = run_all(plan, data, settings);
+  ASSERT_EQ(r.all.sweeps.size(), data.sweep_temperature_k.size());
+  for (std::size_t i = 0; i < r.all.sweeps.size(); ++i)
+    EXPECT_EQ(r.all.sweeps[i].cooldown, i < 10 ? 1 : 2) << "sweep " << i << " at " << data.sweep_temperature_k[i];
+}
+
+// A wild thermometer reading (an open lead reads hundreds of kelvin) or a
+// short excursion above the threshold is not a thermal cycle: a warm-up
+// must stay above new_cooldown_above_k for 60 s of readings. The control
+// case, the same excursion lasting 100 s, does start cooldown 2, so the
+// check can fail.
+TEST(SamplePipeline, AWildThermometerReadingIsNotAWarmUp) {
+  CooldownPlan plan;
+  plan.plateaus_k = {1.0, 0.7, 0.5, 0.35};
+  const Cooldown base = lphi::live::testing::make_cooldown(plan);
+  ASSERT_GE(base.sweep_temperature_k.size(), 4u);
+  // In the middle of the cooldown the thermometer reads 300 K once, then
+  // 40 K for duration_s, in place of its own readings.
+  const double mid_t = 0.5 * (base.lockin.front().t_s + base.lockin.back().t_s);
+  auto with_excursion = [&](double duration_s) {
+    Cooldown d = base;
+    std::erase_if(d.thermometer, [&](const auto& r) {
+      return r.t_s >= mid_t && r.t_s < mid_t + 2.5 + duration_s;
+    });
+    d.thermometer.push_back({mid_t + 0.5, 300.0});
+    for (double t = mid_t + 2.5; t < mid_t + 2.5 + duration_s; t += 1.0) d.thermometer.push_back({t, 40.0});
+    std::stable_sort(d.thermometer.begin(), d.thermometer.end(),
+                     [](const auto& a, const auto& b) { return a.t_s < b.t_s; });
+    return d;
+  };
+  SampleSettings settings = settings_for(plan);
+  settings.new_cooldown_above_k = 30.0;
+  const PipelineRun glitch = run_all(plan, with_excursion(30.0), settings);
+  ASSERT_FALSE(glitch.all.sweeps.empty());
+  for (const auto& sw : glitch.all.sweeps) EXPECT_EQ(sw.cooldown, 1) << "sweep " << sw.index;
+  const PipelineRun warmed = run_all(plan, with_excursion(100.0), settings);
+  std::int64_t last = 0;
+  for (const auto& sw : warmed.all.sweeps) last = std::max(last, sw.cooldown);
+  EXPECT_EQ(last, 2);
+}
+
+// Restart in the second cooldown: the stored fits are reused, the cooldowns
+// recomputed from the readings, and the last verdict is the uninterrupted one.
+TEST(SamplePipeline, RestartInTheSecondCooldownEndsWithTheSameVerdict) {
+  CooldownPlan second;
+  second.plateaus_k = {1.0, 0.7, 0.5, 0.35};
+  std::size_t n_first = 0;
+  const Cooldown data = thermal_cycle(saturating_plan(), second, n_first);
+  SampleSettings settings = settings_for(second);
+  const PipelineRun straight = run_all(second, data, settings);
+  SamplePipeline before(settings);
+  PipelineOutput first;
+  push_merged(before, data, data.lockin.size() * 9 / 10, first);
+  ASSERT_GT(first.fits.size(), n_first);
+  std::map<std::int64_t, FitRecord> stored;
+  for (const auto& f : first.fits) stored[f.sweep_index] = f;
+  const PipelineRun after = run_all(second, data, settings, stored);
+  EXPECT_EQ(after.reused, stored.size());
+  EXPECT_EQ(after.all.fits, straight.all.fits);
+  EXPECT_EQ(after.all.verdicts.back().json, straight.all.verdicts.back().json);
+  EXPECT_EQ(after.all.verdicts.back().cooldown, 2);
+}

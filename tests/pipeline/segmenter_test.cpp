@@ -303,6 +303,41 @@ TEST(SweepSegmenter, SettlingAfterATemperatureStep) {
   EXPECT_TRUE(out.sweeps[0].temperature_unstable);
 }
 
+// A plateau that settles slowly: T = 100 mK (1 + 0.03 exp(-t/60 s)), the
+// last part of a cooling ramp, with the greedy run starting at t = 0. The
+// run breaks when its spread passes 2 % of its mean (hand calculation:
+// 103 mK - T(t) > 0.02 * ~102 mK when 0.03 exp(-t/60 s) < 0.0096, at
+// t = 60 s * ln(3.125) = 68 s, inside the sweep over 40..120 s), yet the
+// sweep's own temperatures, from 101.5 to 100.4 mK, spread by 1.1 % of
+// their mean: within the criterion, so the sweep is
+// stable and belongs to the run that goes on. A real step (the test above,
+// 20 %) still marks its sweep unstable.
+TEST(SweepSegmenter, SlowlySettlingPlateauIsNotATemperatureChange) {
+  auto v = ramp(2000, kTau, 40.0);  // t = 40 .. 120 s
+  for (auto& p : v) p.temperature_k = 0.1 * (1.0 + 0.03 * std::exp(-p.t_s / 60.0));
+  // The tail of the ramp before the sweep, at zero field: the run starts
+  // at t = 0.
+  std::vector<AlignedPoint> all;
+  for (int i = 0; i < 1000; ++i) {
+    AlignedPoint p = v.front();
+    p.t_s = 0.04 * i;
+    p.field_t = -kBmax;
+    p.temperature_k = 0.1 * (1.0 + 0.03 * std::exp(-p.t_s / 60.0));
+    all.push_back(p);
+  }
+  all.insert(all.end(), v.begin(), v.end());
+  lphi::segment::SegmentCounts counts;
+  const auto out = segment(all, noise_free_options(), 1000, &counts);
+  ASSERT_EQ(out.sweeps.size(), 1u);
+  const auto& sw = out.sweeps[0];
+  // The run did break inside the sweep (else this test shows nothing).
+  EXPECT_GT(counts.settling.temperature_change, 0u);
+  EXPECT_EQ(sw.temperature_run, 1u);
+  EXPECT_LT(sw.temperature.max_k - sw.temperature.min_k, 0.02 * sw.temperature.mean_k);
+  EXPECT_FALSE(sw.temperature_unstable);
+  EXPECT_EQ(counts.sweeps_temperature_unstable, 0u);
+}
+
 TEST(SweepSegmenter, SettlingAfterATimeConstantOrRangeChange) {
   // tau changes 0.3 -> 0.1 s at reading 500 (t = 20 s): 5 * 0.1 = 0.5 s, the
   // readings at 20.00 .. 20.48 s: 13. The range changes at reading 1500

@@ -83,8 +83,7 @@ void LiveRun::write_config(const std::string& sample, const std::string& model,
   };
   std::ofstream out(file("lphid.toml"));
   out << "[daemon]\nlog_level = \"info\"\n"
-         "[store]\ncommit_max_ms = 20\n"
-         "[ingest]\ntime_backward_tolerance_s = 60.0\n"
+      << "[store]\n" << store_keys_ << "[ingest]\ntime_backward_tolerance_s = 60.0\n"
          "[[source]]\nname = \"lockin\"\nkind = \"lockin\"\n"
          "[[source]]\nname = \"mxc\"\nkind = \"thermometer\"\n"
          "[[source]]\nname = \"magnet\"\nkind = \"field\"\n"

@@ -50,6 +50,8 @@ class LiveRun {
   // `sample_extra` lines, then `tail` (e.g. an [alerts] table).
   void write_config(const std::string& sample, const std::string& model,
                     const std::string& sample_extra = "", const std::string& tail = "");
+  // The [store] keys write_config writes (default "commit_max_ms = 20").
+  void set_store_keys(std::string keys) { store_keys_ = std::move(keys); }
 
   // A data directory (under dir()) and its lphid; start() waits for status.
   bool start_daemon(const std::string& data = "data");
@@ -75,6 +77,7 @@ class LiveRun {
 
  private:
   std::string dir_, data_dir_, csv_, error_;
+  std::string store_keys_ = "commit_max_ms = 20\n";
   nlohmann::json scenario_;
   std::vector<nlohmann::json> records_;
   std::unique_ptr<DaemonProcess> daemon_;

@@ -84,7 +84,10 @@ TEST(SimTruth, ShippedScenariosAgreeWithTheAnalysisForwardModels) {
       const double t = rec["temperature_k"];
       EXPECT_NEAR(t, world.schedule().plateaus()[sweep.plateau].temperature_k, 1e-15)
           << "the sweeps run at the plateau temperature";
-      const bool heated = h["on"] && 0.5 * (sweep.start_s + sweep.end_s) >= double(h["start_s"]);
+      // The heating lasts duration_s from start_s (0: to the end).
+      const double mid = 0.5 * (sweep.start_s + sweep.end_s), dur = h.value("duration_s", 0.0);
+      const bool heated = h["on"] && mid >= double(h["start_s"]) &&
+                          (dur <= 0.0 || mid < double(h["start_s"]) + dur);
       const double k = h["exponent"];
       const double te = heated ? std::pow(std::pow(t, k) + std::pow(double(h["floor_k"]), k), 1.0 / k) : t;
       EXPECT_NEAR(double(rec["electron_temperature_k"]) / te, 1.0, 1e-13);

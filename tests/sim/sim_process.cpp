@@ -19,6 +19,8 @@
 #include <sstream>
 #include <thread>
 
+#include "../support/text_file.hpp"
+
 extern char** environ;
 
 namespace lphi::testing {
@@ -27,12 +29,6 @@ using Clock = std::chrono::steady_clock;
 
 namespace {
 
-std::string slurp(const std::string& path) {
-  std::ifstream in(path);
-  std::ostringstream s;
-  s << in.rdbuf();
-  return s.str();
-}
 
 int remaining_ms(Clock::time_point deadline) {
   const auto left = std::chrono::duration_cast<std::chrono::milliseconds>(deadline - Clock::now());
@@ -86,7 +82,7 @@ bool SimProcess::start(const std::string& scenario_path, const std::vector<std::
       pid_ = -1;
       return false;
     }
-    const auto j = nlohmann::json::parse(slurp(dir_ + "/ports.json"), nullptr, false);
+    const auto j = nlohmann::json::parse(read_text_file(dir_ + "/ports.json"), nullptr, false);
     if (j.is_object() && j.contains("magnet")) {
       ports_[0] = j["lockin"];
       ports_[1] = j["thermometer"];
@@ -127,7 +123,7 @@ int SimProcess::stop() {
   return wait(std::chrono::seconds(10));
 }
 
-std::string SimProcess::stderr_text() const { return slurp(dir_ + "/stderr"); }
+std::string SimProcess::stderr_text() const { return read_text_file(dir_ + "/stderr"); }
 
 LineClient::~LineClient() { close(); }
 
