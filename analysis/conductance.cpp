@@ -26,17 +26,41 @@ std::string format_field(double field_t) {
   return buf;
 }
 
-// Linear interpolation of the sorted curve (field, value) at `field_t`, which
-// must lie inside [front, back]. Readings taken twice at the same field are
-// averaged by the caller before this is used.
+// Cubic (four-point Lagrange) interpolation of the sorted curve (field,
+// value) at `field_t`, which must lie inside [front, back]: through the two
+// readings on each side, the stencil moved inward at the ends of the curve
+// (linear when the curve has only two readings). Readings taken twice at the
+// same field are averaged by the caller before this is used.
+//
+// Linear interpolation errs by about h^2 f''/8 at a step h; near the
+// weak-localization cusp, with field steps of half B_phi or more (a sweep
+// sampled every few hundred microtesla at 100 mK), that is several times the
+// lock-in's noise and the symmetrized points no longer follow the model.
+// The cubic errs by about 3 h^4 f''''/128, more than ten times less there;
+// it is exact for polynomials up to B^3, and its weights at mid-step,
+// (-1, 9, 9, -1)/16, raise the noise of an interpolated value only from
+// 0.5 to 0.64 of a reading's variance.
 double interpolate(const std::vector<FieldPoint>& sorted, double field_t) {
   auto hi = std::lower_bound(sorted.begin(), sorted.end(), field_t,
                              [](const FieldPoint& p, double b) { return p.field_t < b; });
   if (hi == sorted.end()) return sorted.back().value;
   if (hi->field_t == field_t || hi == sorted.begin()) return hi->value;
-  auto lo = hi - 1;
-  const double t = (field_t - lo->field_t) / (hi->field_t - lo->field_t);
-  return lo->value + t * (hi->value - lo->value);
+  const std::size_t n = sorted.size();
+  const auto upper = static_cast<std::size_t>(hi - sorted.begin());  // sorted[upper - 1] < field_t < sorted[upper]
+  if (n < 4) {
+    const FieldPoint& lo = sorted[upper - 1];
+    const double t = (field_t - lo.field_t) / (hi->field_t - lo.field_t);
+    return lo.value + t * (hi->value - lo.value);
+  }
+  const std::size_t first = std::min(upper >= 2 ? upper - 2 : std::size_t{0}, n - 4);
+  double value = 0.0;
+  for (std::size_t j = first; j < first + 4; ++j) {
+    double weight = 1.0;
+    for (std::size_t k = first; k < first + 4; ++k)
+      if (k != j) weight *= (field_t - sorted[k].field_t) / (sorted[j].field_t - sorted[k].field_t);
+    value += weight * sorted[j].value;
+  }
+  return value;
 }
 
 // sigma(0) from a robust weighted least-squares fit of a + c B^2 to the
@@ -208,7 +232,7 @@ PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, Prepar
                 " needed on each side)");
 
   // Symmetrize at the measured fields of the denser side; the opposite branch
-  // is interpolated linearly at the mirrored field. Fields whose mirror lies
+  // is interpolated (cubic, see interpolate) at the mirrored field. Fields whose mirror lies
   // outside the measured range are dropped. Using one side only keeps every
   // raw reading in at most one symmetrized point (besides interpolation), so
   // that the points stay independent.

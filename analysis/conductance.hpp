@@ -57,7 +57,10 @@ struct PrepareStatus {
 //
 // Readings repeated at one field are averaged. Symmetrized points sit at the
 // measured fields of the side with more points (B > 0 on a tie); the other
-// branch is interpolated linearly at each mirrored field, and fields whose
+// branch is interpolated at each mirrored field (four-point cubic through the
+// two readings on each side: linear interpolation errs by h^2 f''/8, which
+// near the cusp is several times the noise when the field step h is half of
+// B_phi or more), and fields whose
 // mirror lies outside the measured range are dropped. A reading at exactly
 // B = 0 is kept as it is.
 //
