@@ -8,6 +8,7 @@
 #include <algorithm>
 #include <chrono>
 #include <cmath>
+#include <thread>
 
 #include "daemon/store/database.hpp"
 
@@ -157,12 +158,46 @@ void IngestServer::run(const std::atomic<bool>& stop) {
     }
   }
   spdlog::info("stopping: writing what is queued");
-  if (held_) {
-    refuse(held_->peer, held_->ack.batch_id, Reason::shutting_down, "lphid is stopping");
-    held_.reset();
-  }
+  write_what_was_taken();
   writer_.stop();
   drain_completions();
+}
+
+bool IngestServer::driver_inbox_empty() {
+  std::lock_guard lock(inbox_mutex_);
+  return std::all_of(inbox_.begin(), inbox_.end(), [](const auto& slot) { return !slot.second; });
+}
+
+// On stopping: a driver's hand-over that offer_driver_readings took (it
+// returned true, so the driver dropped the readings) and a batch held for
+// room in the writer's queue are written, not dropped. The inbox is closed
+// first, so that drivers still running keep what they read from now on.
+// The writer is still running and empties its queue, so room comes; the wait
+// is bounded all the same, and a batch still held at its end is refused
+// (a sender keeps and resends it) or, a driver's, logged as lost.
+void IngestServer::write_what_was_taken() {
+  {
+    std::lock_guard lock(inbox_mutex_);
+    inbox_closed_ = true;
+  }
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(30);
+  while (std::chrono::steady_clock::now() < deadline) {
+    drain_completions();
+    if (held_ && submit(*held_)) held_.reset();
+    if (!held_) drain_driver_inbox();
+    if (!held_ && driver_inbox_empty()) break;
+    std::this_thread::sleep_for(std::chrono::milliseconds(5));
+  }
+  if (held_) {
+    if (held_->peer.internal) {
+      spdlog::error("source {}: {} readings from its driver could not be written before stopping "
+                    "(the store writer had no room for 30 s)",
+                    held_->source != nullptr ? held_->source->name : "?", held_->ack.accepted);
+    } else {
+      refuse(held_->peer, held_->ack.batch_id, Reason::shutting_down, "lphid is stopping");
+    }
+    held_.reset();
+  }
 }
 
 void IngestServer::on_ingest_message() {
@@ -426,7 +461,7 @@ bool IngestServer::offer_driver_readings(const std::string& source, protocol::Re
   {
     std::lock_guard lock(inbox_mutex_);
     auto it = inbox_.find(source);
-    if (it == inbox_.end() || it->second) return false;
+    if (inbox_closed_ || it == inbox_.end() || it->second) return false;
     it->second = std::move(readings);
   }
   const std::uint64_t one = 1;

@@ -144,6 +144,8 @@ class IngestServer {
   void accept_readings(const Peer& peer, SourceRuntime& source, std::optional<std::uint64_t> batch_id,
                        const nlohmann::json& readings);
   void drain_driver_inbox();
+  bool driver_inbox_empty();
+  void write_what_was_taken();
   void submit_identities();
   bool submit(Held& held);
   void drain_completions();
@@ -170,6 +172,7 @@ class IngestServer {
   // Driver hand-overs: one slot per source (keys fixed at create()), and
   // identities, guarded by inbox_mutex_; this thread takes them out.
   std::mutex inbox_mutex_;
+  bool inbox_closed_ = false;  // stopping: offers are refused, the driver keeps its readings
   std::map<std::string, std::optional<protocol::Readings>> inbox_;
   std::vector<std::pair<std::string, std::string>> inbox_identities_;
   std::vector<std::pair<SourceRuntime*, std::string>> identities_to_store_;
