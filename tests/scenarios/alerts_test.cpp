@@ -126,6 +126,16 @@ TEST(ScenarioAlerts, SaturatingIsRaisedThenClearedWhenSaturated) {
   ASSERT_TRUE(live && live->is_array()) << run.error();
   for (const auto& a : *live) EXPECT_NE(a.value("state", ""), "cleared") << a.dump();
   EXPECT_FALSE(alerts_of(*live, "verdict-saturated").empty());
+  // Every sweep of this scenario is the model plus noise (lock-in and field
+  // reading): no fit's chi2_red against the points' own noise reaches the
+  // default limit of 3, so fit-chi2 is never raised.
+  EXPECT_TRUE(alerts_of(*all, "fit-chi2").empty()) << all->dump(2);
+  const auto fits = run.query("fits", "");
+  ASSERT_TRUE(fits && fits->is_array() && !fits->empty()) << run.error();
+  for (const auto& f : *fits) {
+    ASSERT_TRUE(f.at("chi2_red").is_number()) << f.dump();
+    EXPECT_LT(f.at("chi2_red").get<double>(), 2.5) << "sweep " << f.value("sweep_index", -1);
+  }
 }
 
 TEST(ScenarioAlerts, HeatingRaisesElectronsNotCooling) {
