@@ -1,28 +1,33 @@
 #include "analysis/sweep_fit.hpp"
 
-#include <ceres/tiny_solver.h>
-
 #include <Eigen/Dense>
 #include <algorithm>
-#include <array>
 #include <cmath>
-#include <cstdio>
 #include <limits>
-#include <memory>
 #include <span>
 #include <string>
 #include <vector>
 
 #include "analysis/constants.hpp"
 #include "analysis/special_functions.hpp"
+#include "analysis/sweep_fit_function.hpp"
 
 namespace lphi::fit {
 namespace {
 
-constexpr double kInf = std::numeric_limits<double>::infinity();
+using detail::Data;
+using detail::Evaluations;
+using detail::kE;
+using detail::kHbar;
+using detail::kInf;
+using detail::Layout;
+using detail::PassResult;
+using detail::Shape;
+using detail::tiny_solve;
+using detail::Values;
+using detail::unpack;
+
 constexpr double kWl = si::wl_conductance_s;  // e^2/(pi h), the residual unit
-constexpr double kHbar = si::hbar_j_s;
-constexpr double kE = si::elementary_charge_c;
 
 // Thresholds; the header documents each of them.
 constexpr double kNarrowWindowRatio = 2.0;
@@ -34,73 +39,6 @@ constexpr double kBoundFactor = 100.0;
 constexpr int kMaxWindowPasses = 8;
 constexpr double kWindowSettle = 0.05;
 constexpr std::size_t kGridSubsample = 64;
-
-// The field-dependent part of the fit function: which model, and the fixed
-// geometry it needs.
-struct Shape {
-  mc::Model model = mc::Model::hln2d;
-  bool wire_spin_orbit = false;
-  double width_m = 0.0;
-  double thickness_m = 0.0;
-
-  bool has_lso() const {
-    return model == mc::Model::hln2d_so || (model == mc::Model::wire1d && wire_spin_orbit);
-  }
-
-  double value(double field_t, double lphi_m, double lso_m, double alpha) const {
-    switch (model) {
-      case mc::Model::hln2d:
-        return mc::hln2d(field_t, alpha, lphi_m);
-      case mc::Model::hln2d_so:
-        return mc::hln2d_so(field_t, lphi_m, lso_m);
-      case mc::Model::wire1d:
-        return wire_spin_orbit ? mc::wire1d_so(field_t, lphi_m, lso_m, width_m)
-                               : mc::wire1d(field_t, lphi_m, width_m);
-      case mc::Model::kawabata3d:
-        return mc::kawabata3d(field_t, lphi_m, thickness_m);
-    }
-    return 0.0;
-  }
-
-  mc::ModelGradient gradient(double field_t, double lphi_m, double lso_m, double alpha) const {
-    switch (model) {
-      case mc::Model::hln2d:
-        return mc::hln2d_grad(field_t, alpha, lphi_m);
-      case mc::Model::hln2d_so:
-        return mc::hln2d_so_grad(field_t, lphi_m, lso_m);
-      case mc::Model::wire1d:
-        return wire_spin_orbit ? mc::wire1d_so_grad(field_t, lphi_m, lso_m, width_m)
-                               : mc::wire1d_grad(field_t, lphi_m, width_m);
-      case mc::Model::kawabata3d:
-        return mc::kawabata3d_grad(field_t, lphi_m, thickness_m);
-    }
-    return {};
-  }
-
-  // The field at which a length leaves the low-field regime (see the header)
-  // and its inverse.
-  double field_of_length(double length_m) const {
-    if (model == mc::Model::wire1d) return std::sqrt(3.0) * kHbar / (kE * width_m * length_m);
-    return mc::characteristic_field_t(length_m);
-  }
-  double length_of_field(double field_t) const {
-    if (model == mc::Model::wire1d) return std::sqrt(3.0) * kHbar / (kE * width_m * field_t);
-    return mc::characteristic_length_m(field_t);
-  }
-};
-
-// Positions of the parameters in the single parameter block; -1 when absent.
-struct Layout {
-  int ln_lphi = 0;
-  int ln_lso = -1;
-  int alpha = -1;
-  int offset = -1;
-  int background = -1;
-  int size = 1;
-  double alpha_held = 1.0;  // used when alpha is not a parameter (hln2d)
-
-  bool operator==(const Layout&) const = default;
-};
 
 Layout make_layout(const Shape& shape, bool alpha_free, double alpha_held, bool offset,
                    bool background) {
@@ -115,57 +53,8 @@ Layout make_layout(const Shape& shape, bool alpha_free, double alpha_held, bool 
   return l;
 }
 
-// The points of one pass. y is Delta sigma in units of e^2/(pi h); weight is
-// 1/error in the same unit, or 1 when the errors are unknown. The HLN model
-// needs x = B_phi/|B| and ln x at every point of every model pass; 1/|B| and
-// -ln|B| are taken once per sweep (both +infinity at B = 0, where x is
-// infinite and the bracket 0; both 0 for the other models, which do not use
-// them).
-struct Data {
-  std::vector<double> field_t;
-  std::vector<double> y;
-  std::vector<double> weight;
-  std::vector<double> inverse_field;
-  std::vector<double> ln_inverse_field;
-  bool errors_known = false;  // weights from given point errors
-  std::size_t size() const { return field_t.size(); }
-  void resize(std::size_t n) {
-    for (std::vector<double>* v : {&field_t, &y, &weight, &inverse_field, &ln_inverse_field})
-      v->resize(n);
-  }
-  void set(std::size_t i, const Data& from, std::size_t j) {
-    field_t[i] = from.field_t[j];
-    y[i] = from.y[j];
-    weight[i] = from.weight[j];
-    inverse_field[i] = from.inverse_field[j];
-    ln_inverse_field[i] = from.ln_inverse_field[j];
-  }
-};
-
 // hbar/(4e), so that ln B_phi = ln(hbar/(4e)) - 2 ln L_phi.
 const double kLnHbarOver4e = std::log(kHbar / (4.0 * kE));
-
-// Every parameter in natural form, whether fitted or not.
-struct Values {
-  double lphi_m = 0, lso_m = 0, alpha = 1, offset = 0, background = 0;
-};
-
-Values unpack(const Layout& l, const double* theta) {
-  Values v;
-  v.lphi_m = std::exp(theta[l.ln_lphi]);
-  if (l.ln_lso >= 0) v.lso_m = std::exp(theta[l.ln_lso]);
-  v.alpha = l.alpha >= 0 ? theta[l.alpha] : l.alpha_held;
-  if (l.offset >= 0) v.offset = theta[l.offset];
-  if (l.background >= 0) v.background = theta[l.background];
-  return v;
-}
-
-// Weighted residuals w_i (f(B_i) - y_i) and their derivatives (column-major,
-// n x layout.size, column k at jacobian + k n), all from the analytic
-// gradients. Value and Jacobian come out of one pass because the model's
-// gradient functions return both for little more than the value alone.
-void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* theta,
-              double* residuals, double* jacobian, std::span<special::BracketAndSlope> scratch);
 
 // evaluate() for hln2d, the model most sweeps are fitted with, in the form
 // of mc::hln2d_grad (alpha b(x), -2 alpha x b'(x), b(x)) but with x = B_phi/|B|
@@ -196,6 +85,10 @@ void evaluate_hln(const Layout& l, const Data& d, const double* theta, double* r
   }
 }
 
+}  // namespace
+
+namespace detail {
+
 void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* theta,
               double* residuals, double* jacobian, std::span<special::BracketAndSlope> scratch) {
   if (shape.model == mc::Model::hln2d) {
@@ -223,166 +116,9 @@ void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* 
   }
 }
 
-// Two evaluations of one LM pass: the current iterate (the last point whose
-// Jacobian the solver asked for) and the latest trial point. The solver asks
-// for a trial point's residuals, then, once it accepts the step, for its
-// Jacobian too; each model pass computes both, so every point costs one pass,
-// and the covariance at the solution reuses the pass at the solution. The
-// buffers are sized once per pass (and not cleared: every entry is written
-// before it is read); nothing is allocated inside the LM loop.
-class Evaluations {
- public:
-  Evaluations(const Shape& shape, const Layout& layout, const Data& data)
-      : shape_(shape), layout_(layout), data_(data),
-        p_(static_cast<std::size_t>(layout.size)), n_(data.size()) {
-    for (Slot& s : slots_) {
-      s.theta = std::make_unique_for_overwrite<double[]>(p_);
-      s.residuals = std::make_unique_for_overwrite<double[]>(n_);
-      s.jacobian = std::make_unique_for_overwrite<double[]>(n_ * p_);
-    }
-    if (shape.model == mc::Model::hln2d)
-      scratch_ = std::make_unique_for_overwrite<special::BracketAndSlope[]>(n_);
-  }
-  struct Slot {
-    std::unique_ptr<double[]> theta;      // p
-    std::unique_ptr<double[]> residuals;  // n
-    std::unique_ptr<double[]> jacobian;   // n x p, column-major
-    bool valid = false;
-  };
-  std::size_t size() const { return n_; }
-  // The evaluation at theta; made now unless one of the two slots holds it.
-  // A request for the Jacobian marks theta as the iterate, which the next
-  // new point must not overwrite.
-  const Slot& at(const double* theta, bool iterate) {
-    std::size_t k = 0;
-    while (k < slots_.size() && !holds(slots_[k], theta)) ++k;
-    if (k == slots_.size()) {
-      k = 1 - iterate_;
-      Slot& s = slots_[k];
-      evaluate(shape_, layout_, data_, theta, s.residuals.get(), s.jacobian.get(),
-               {scratch_.get(), scratch_ ? n_ : 0});
-      std::copy(theta, theta + p_, s.theta.get());
-      s.valid = true;
-    }
-    if (iterate) iterate_ = k;
-    return slots_[k];
-  }
+}  // namespace detail
 
- private:
-  bool holds(const Slot& s, const double* theta) const {
-    return s.valid && std::equal(s.theta.get(), s.theta.get() + p_, theta);
-  }
-  const Shape& shape_;
-  const Layout& layout_;
-  const Data& data_;
-  std::size_t p_, n_;
-  std::array<Slot, 2> slots_;
-  std::unique_ptr<special::BracketAndSlope[]> scratch_;  // hln2d only
-  std::size_t iterate_ = 0;
-};
-
-double sum_of_squares(const double* r, std::size_t n) {
-  double sum = 0.0;
-  for (std::size_t i = 0; i < n; ++i) sum += r[i] * r[i];
-  return sum;
-}
-
-// The Gauss-Newton step left at an iterate, in standard errors: with J^T J
-// and g = J^T r at the iterate, the step is delta = (J^T J)^-1 g and the
-// chi-square it would remove is g^T delta (for a linear model exactly,
-// near the minimum to second order). The covariance is (J^T J)^-1, times
-// chi2/(n - p) when the point errors are unknown (see the header), so the
-// step's length in standard errors is sqrt(g^T delta) or
-// sqrt(g^T delta (n - p)/chi2). Returns +infinity when J^T J is singular.
-template <int P>
-double gauss_newton_step_in_standard_errors(const double* residuals, const double* jacobian,
-                                            std::size_t n, bool errors_known) {
-  Eigen::Matrix<double, P, P> jtj = Eigen::Matrix<double, P, P>::Zero();
-  Eigen::Matrix<double, P, 1> g = Eigen::Matrix<double, P, 1>::Zero();
-  double chi2 = 0.0;
-  std::array<const double*, P> column;
-  for (std::size_t a = 0; a < P; ++a) column[a] = jacobian + a * n;
-  std::array<double, P> g_sum{};
-  std::array<double, P * (P + 1) / 2> jtj_sum{};  // lower triangle, row by row
-  for (std::size_t i = 0; i < n; ++i) {
-    const double r = residuals[i];
-    chi2 += r * r;
-    std::size_t t = 0;
-    for (std::size_t a = 0; a < P; ++a) {
-      const double ja = column[a][i];
-      g_sum[a] += ja * r;
-      for (std::size_t b = 0; b <= a; ++b) jtj_sum[t++] += ja * column[b][i];
-    }
-  }
-  std::size_t t = 0;
-  for (int a = 0; a < P; ++a) {
-    g[a] = g_sum[static_cast<std::size_t>(a)];
-    for (int b = 0; b <= a; ++b) jtj(a, b) = jtj(b, a) = jtj_sum[t++];
-  }
-  const double dof = static_cast<double>(n) - P;
-  if (!(dof > 0.0)) return kInf;
-  // Jacobi scaling keeps the factorization well conditioned; the quadratic
-  // form is invariant under it.
-  const Eigen::Matrix<double, P, 1> scale = jtj.diagonal().cwiseSqrt().cwiseInverse();
-  if (!scale.allFinite()) return kInf;
-  const Eigen::Matrix<double, P, P> normalized = scale.asDiagonal() * jtj * scale.asDiagonal();
-  const Eigen::LLT<Eigen::Matrix<double, P, P>> llt(normalized);
-  if (llt.info() != Eigen::Success) return kInf;
-  const Eigen::Matrix<double, P, 1> scaled_g = scale.cwiseProduct(g);
-  const double removed = scaled_g.dot(llt.solve(scaled_g));
-  const double variance_scale = errors_known ? 1.0 : chi2 / dof;
-  const double steps2 = removed / variance_scale;
-  return std::isfinite(steps2) && steps2 >= 0.0 ? std::sqrt(steps2) : kInf;
-}
-
-// LM stops at an iterate whose Gauss-Newton step left is below this many
-// standard errors: the answer is then that close to the minimum, and the
-// trial step that would confirm it (one more model pass) is not taken. The
-// GSL cross-check asks for agreement to 0.01 standard errors.
-constexpr double kGaussNewtonStepTolerance = 1e-3;
-
-// The sweep as a ceres::TinySolver function with P parameters (fixed at
-// compile time, so the normal equations are small fixed-size products) and
-// one residual per point.
-//
-// TinySolver evaluates the Jacobian at each new iterate and then compares
-// the gradient with options.gradient_tolerance. The function sees that
-// Jacobian first: when the Gauss-Newton step left there is below
-// kGaussNewtonStepTolerance, it raises the solver's gradient tolerance to
-// infinity so that the solver stops at that iterate (GRADIENT_TOO_SMALL),
-// and records that it did so.
-template <int P>
-class SweepResiduals {
- public:
-  using Scalar = double;
-  enum { NUM_RESIDUALS = Eigen::Dynamic, NUM_PARAMETERS = P };
-
-  SweepResiduals(Evaluations& evaluations, bool errors_known, double* solver_gradient_tolerance)
-      : evaluations_(evaluations), errors_known_(errors_known),
-        solver_gradient_tolerance_(solver_gradient_tolerance) {}
-  int NumResiduals() const { return static_cast<int>(evaluations_.size()); }
-  bool operator()(const double* theta, double* residuals, double* jacobian) const {
-    const std::size_t n = evaluations_.size();
-    const Evaluations::Slot& e = evaluations_.at(theta, jacobian != nullptr);
-    std::copy(e.residuals.get(), e.residuals.get() + n, residuals);
-    if (jacobian != nullptr) {
-      std::copy(e.jacobian.get(), e.jacobian.get() + n * P, jacobian);
-      if (gauss_newton_step_in_standard_errors<P>(e.residuals.get(), e.jacobian.get(), n,
-                                                  errors_known_) < kGaussNewtonStepTolerance) {
-        *solver_gradient_tolerance_ = kInf;
-        stopped_ = true;
-      }
-    }
-    return true;
-  }
-  bool stopped_at_gauss_newton_tolerance() const { return stopped_; }
-
- private:
-  Evaluations& evaluations_;
-  bool errors_known_;
-  double* solver_gradient_tolerance_;
-  mutable bool stopped_ = false;
-};
+namespace {
 
 // Linear least squares for the parameters that enter linearly (alpha when
 // free, offset, background) with the lengths held, over the points `index`.
@@ -560,103 +296,6 @@ struct Bounds {
 Bounds length_bounds(const Shape& shape, double field_step, double window) {
   return {std::log(shape.length_of_field(kBoundFactor * window)),
           std::log(shape.length_of_field(field_step / kBoundFactor))};
-}
-
-struct PassResult {
-  int iterations = 0;
-  bool converged = false;
-  std::string termination;
-};
-
-// Convergence, besides the Gauss-Newton step test above (which normally
-// ends the solve first), as in Ceres' defaults for a small problem: the
-// chi-square changes by less than kFunctionTolerance of itself, or the step is below
-// kParameterTolerance relative, or the (Jacobi-scaled) gradient's largest
-// entry is below kGradientTolerance. Residuals are of order one (see the
-// header), so the cost is ~n/2 in units of the noise; a chi-square change
-// ~1e-7 n means the step before the last was ~0.01 standard errors for
-// n <= 1e4, and Gauss-Newton steps near the minimum shrink quadratically, so
-// the solution sits far closer than that to the minimum.
-constexpr double kFunctionTolerance = 1e-7;
-constexpr double kParameterTolerance = 1e-8;
-constexpr double kGradientTolerance = 1e-10;
-// TinySolver's function tolerance is absolute (in chi-square); it is set
-// from the chi-square at the start of a solve, and the solve is resumed with
-// a tighter one while the chi-square fell by more than this factor.
-constexpr double kToleranceRefresh = 0.5;
-
-template <int P>
-PassResult tiny_solve(Evaluations& evaluations, bool errors_known, int max_iterations,
-                      std::vector<double>& theta, std::vector<double>& residuals,
-                      std::vector<double>& jacobian) {
-  using Solver = ceres::TinySolver<SweepResiduals<P>>;
-  Solver solver;
-  const SweepResiduals<P> function(evaluations, errors_known, &solver.options.gradient_tolerance);
-  solver.options.parameter_tolerance = kParameterTolerance;
-  typename Solver::Parameters x = Eigen::Map<const Eigen::Matrix<double, P, 1>>(theta.data());
-
-  PassResult r;
-  const std::size_t n = evaluations.size();
-  double chi2_scale = sum_of_squares(evaluations.at(x.data(), true).residuals.get(), n);
-  int left = max_iterations;
-  typename Solver::Status status = Solver::HIT_MAX_ITERATIONS;
-  double chi2 = chi2_scale;
-  while (left > 0) {
-    solver.options.gradient_tolerance = kGradientTolerance;
-    solver.options.function_tolerance = kFunctionTolerance * chi2_scale;
-    // TinySolver tries at most max_num_iterations - 1 steps.
-    solver.options.max_num_iterations = left + 1;
-    const typename Solver::Summary& summary = solver.Solve(function, &x);
-    status = summary.status;
-    const int steps = std::min(summary.iterations, left);
-    r.iterations += steps;
-    left -= steps;
-    chi2 = 2.0 * summary.final_cost;
-    if (status != Solver::COST_CHANGE_TOO_SMALL || !(chi2 < kToleranceRefresh * chi2_scale) ||
-        steps == 0)
-      break;
-    chi2_scale = chi2;
-  }
-  std::copy(x.data(), x.data() + P, theta.begin());
-  const Evaluations::Slot& at_solution = evaluations.at(theta.data(), true);
-  residuals.assign(at_solution.residuals.get(), at_solution.residuals.get() + n);
-  jacobian.assign(at_solution.jacobian.get(), at_solution.jacobian.get() + n * P);
-  chi2 = sum_of_squares(residuals.data(), n);
-
-  r.converged = std::isfinite(chi2);
-  char message[160];
-  switch (status) {
-    case Solver::COST_CHANGE_TOO_SMALL:
-      std::snprintf(message, sizeof message,
-                    "function tolerance reached: |chi2 change| < %.0e of chi2 %.6g",
-                    kFunctionTolerance, chi2);
-      break;
-    case Solver::RELATIVE_STEP_SIZE_TOO_SMALL:
-      std::snprintf(message, sizeof message, "parameter tolerance reached: |step| < %.0e |x|",
-                    kParameterTolerance);
-      break;
-    case Solver::GRADIENT_TOO_SMALL:
-      if (function.stopped_at_gauss_newton_tolerance())
-        std::snprintf(message, sizeof message,
-                      "Gauss-Newton step left below %.0e standard errors", kGaussNewtonStepTolerance);
-      else
-        std::snprintf(message, sizeof message,
-                      "gradient tolerance reached: max |scaled gradient| < %.0e",
-                      kGradientTolerance);
-      break;
-    case Solver::COST_TOO_SMALL:
-      std::snprintf(message, sizeof message, "chi2 %.3g is zero to double precision", chi2);
-      break;
-    case Solver::HIT_MAX_ITERATIONS:
-    default:
-      r.converged = false;
-      std::snprintf(message, sizeof message, "maximum number of iterations (%d) reached",
-                    max_iterations);
-      break;
-  }
-  if (!std::isfinite(chi2)) std::snprintf(message, sizeof message, "chi2 is not finite");
-  r.termination = message;
-  return r;
 }
 
 // One LM pass (Ceres' TinySolver: Levenberg-Marquardt on the normal
