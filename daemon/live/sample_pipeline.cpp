@@ -5,7 +5,6 @@
 #include <utility>
 
 #include "analysis/conductance.hpp"
-#include "analysis/constants.hpp"
 #include "analysis/sweep_residuals.hpp"
 #include "analysis/verdict.hpp"
 #include "daemon/live/result_json.hpp"
