@@ -45,7 +45,7 @@
 //
 // Accuracy: relative error at most 1e-10 against high-precision values over
 // B_phi/B from 1e-3 to 1e8, and for every model over B = 1e-6..10 T,
-// L_phi = 10 nm..100 um, L_so = 10 nm..10 um (tests/models/; the worst seen is
+// L_phi = 10 nm..100 um, L_so = 10 nm..10 um (tests/analysis/models/; the worst seen is
 // ~1e-12). Where a model changes sign (the spin-orbit forms crossing from
 // localization to antilocalization) the error is relative to the sum of the
 // magnitudes of its terms.

@@ -13,7 +13,7 @@
 //                       = 1/(24 x^2) - 7/(960 x^4) + 31/(8064 x^6) - ...
 // The crossover and the number of terms are chosen so that the relative error
 // of the bracket and of its derivative stays at most 1e-10 for every x > 0
-// (tests/models/ checks this against 50-digit values).
+// (tests/analysis/models/ checks this against 50-digit values).
 //
 // Kawabata's f3 is summed without cancellation: a few exact terms of its
 // series, each written in a form free of differences of nearly equal square

@@ -89,8 +89,8 @@
 #include <string_view>
 #include <vector>
 
-#include "conductance.hpp"
-#include "magnetoconductance.hpp"
+#include "analysis/conductance.hpp"
+#include "analysis/magnetoconductance.hpp"
 
 namespace lphi::fit {
 

@@ -7,7 +7,7 @@
 #include <cstdint>
 #include <vector>
 
-#include "magnetoconductance.hpp"
+#include "analysis/magnetoconductance.hpp"
 
 namespace lphi::synthetic {
 

@@ -19,9 +19,9 @@ foreach(path IN LISTS MIGRATIONS)
   math(EXPR count "${count} + 1")
 endforeach()
 set(content "// Generated from schema/*.sql by schema/embed_migrations.cmake. Do not edit.
-#include \"daemon/store/migrations.hpp\"
+#include \"schema/migrations.hpp\"
 
-namespace lphi::store {
+namespace lphi::schema {
 
 namespace {
 const Migration embedded[] = {
@@ -30,7 +30,13 @@ ${body}};
 
 std::span<const Migration> embedded_migrations() { return embedded; }
 
-}  // namespace lphi::store
+int latest_version(std::span<const Migration> migrations) {
+  int latest = 0;
+  for (const auto& m : migrations) latest = m.version > latest ? m.version : latest;
+  return latest;
+}
+
+}  // namespace lphi::schema
 ")
 file(WRITE "${OUTPUT}.tmp" "${content}")
 file(COPY_FILE "${OUTPUT}.tmp" "${OUTPUT}" ONLY_IF_DIFFERENT)

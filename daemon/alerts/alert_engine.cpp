@@ -13,7 +13,7 @@
 #include "daemon/alerts/alert_store.hpp"
 #include "daemon/alerts/event_publisher.hpp"
 #include "daemon/alerts/hook_runner.hpp"
-#include "daemon/protocol/codec.hpp"
+#include "schema/protocol/codec.hpp"
 
 namespace lphi::alerts {
 

@@ -14,7 +14,7 @@
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/client/format.hpp"
 #include "daemon/client/options.hpp"
-#include "daemon/live/result_json.hpp"
+#include "schema/result_json.hpp"
 
 namespace lphi::client {
 namespace {
@@ -33,10 +33,10 @@ std::string state_sentence(dephasing::State s) {
   return "unknown";
 }
 
-// The keys lphid's verdict also carries (daemon/live/result_json.hpp), plus
+// The keys lphid's verdict also carries (schema/result_json.hpp), plus
 // the input file.
 nlohmann::json to_json(const dephasing::DephasingResult& r, const std::string& source) {
-  nlohmann::json j = live::dephasing_json(r);
+  nlohmann::json j = schema::dephasing_json(r);
   j["input"] = source;
   return j;
 }

@@ -18,7 +18,7 @@
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/client/format.hpp"
 #include "daemon/client/options.hpp"
-#include "daemon/live/result_json.hpp"
+#include "schema/result_json.hpp"
 
 namespace lphi::client {
 namespace {
@@ -50,10 +50,10 @@ struct FitOutcome {
   fit::SweepFitResult result;
 };
 
-// The keys lphid's fits also carry (daemon/live/result_json.hpp), plus the
+// The keys lphid's fits also carry (schema/result_json.hpp), plus the
 // input file, the signal column used and the rows read.
 nlohmann::json to_json(const FitOutcome& o) {
-  nlohmann::json j = live::sweep_fit_json(o.result, o.prepared);
+  nlohmann::json j = schema::sweep_fit_json(o.result, o.prepared);
   j["input"] = o.source;
   j["input_column"] = std::string(column_name(o.signal));
   j["n_rows"] = o.rows;

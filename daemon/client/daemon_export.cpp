@@ -8,7 +8,7 @@
 
 #include "daemon/client/daemon_locate.hpp"
 #include "daemon/client/exit_codes.hpp"
-#include "daemon/protocol/codec.hpp"
+#include "schema/protocol/codec.hpp"
 #include "daemon/store/reader.hpp"
 
 namespace lphi::client {

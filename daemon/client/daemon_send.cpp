@@ -11,7 +11,7 @@
 #include "daemon/client/csv_table.hpp"
 #include "daemon/client/daemon_locate.hpp"
 #include "daemon/client/exit_codes.hpp"
-#include "daemon/protocol/codec.hpp"
+#include "schema/protocol/codec.hpp"
 #include "drivers/sender/sender.hpp"
 
 namespace lphi::client {

@@ -13,8 +13,8 @@
 #include <string_view>
 #include <vector>
 
-#include "daemon/protocol/codec.hpp"
-#include "daemon/protocol/reading.hpp"
+#include "schema/protocol/codec.hpp"
+#include "schema/protocol/reading.hpp"
 #include "drivers/instrument/driver_config.hpp"
 
 namespace lphi::config {

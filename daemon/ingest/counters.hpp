@@ -7,7 +7,7 @@
 #include <optional>
 #include <string>
 
-#include "daemon/protocol/reason.hpp"
+#include "schema/protocol/reason.hpp"
 
 namespace lphi::ingest {
 

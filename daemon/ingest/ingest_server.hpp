@@ -46,7 +46,7 @@
 #include "daemon/config/config.hpp"
 #include "daemon/config/data_dir.hpp"
 #include "daemon/ingest/counters.hpp"
-#include "daemon/protocol/codec.hpp"
+#include "schema/protocol/codec.hpp"
 #include "daemon/store/writer.hpp"
 
 namespace lphi::ingest {

@@ -17,8 +17,8 @@
 #include "daemon/alerts/alert_engine.hpp"
 #include "daemon/store/writer.hpp"
 #include "daemon/alerts/event_publisher.hpp"
-#include "daemon/live/result_json.hpp"
-#include "daemon/protocol/codec.hpp"
+#include "schema/result_json.hpp"
+#include "schema/protocol/codec.hpp"
 
 namespace lphi::live {
 
@@ -346,8 +346,8 @@ json LiveAnalysis::Worker::sweep_json(const SweepRecord& s, std::int64_t sweep_i
           {"temperature_unstable", s.temperature_unstable},
           {"truncated", s.truncated},
           {"n_overload", s.n_overload},
-          {"max_quadrature_ratio", optional_json(s.max_quadrature_ratio)},
-          {"excitation_ratio", optional_json(s.excitation_ratio)},
+          {"max_quadrature_ratio", schema::optional_json(s.max_quadrature_ratio)},
+          {"excitation_ratio", schema::optional_json(s.excitation_ratio)},
           {"fitted", false}};
 }
 
@@ -781,7 +781,7 @@ json LiveAnalysis::samples_reply() const {
                        {"width_m", s.width_m},
                        {"thickness_m", s.thickness_m},
                        {"excitation_a", s.excitation_a},
-                       {"gain", optional_json(s.gain)},
+                       {"gain", schema::optional_json(s.gain)},
                        {"combine_up_down", s.combine_up_down}});
   }
   return {{"type", "samples"}, {"samples", std::move(samples)}};

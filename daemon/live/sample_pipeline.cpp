@@ -7,7 +7,7 @@
 #include "analysis/conductance.hpp"
 #include "analysis/sweep_residuals.hpp"
 #include "analysis/verdict.hpp"
-#include "daemon/live/result_json.hpp"
+#include "schema/result_json.hpp"
 
 namespace lphi::live {
 
@@ -95,7 +95,7 @@ std::string validate(const SampleSettings& s) {
 
 nlohmann::json no_data_verdict_json() {
   dephasing::DephasingResult empty;
-  nlohmann::json j = dephasing_json(empty);
+  nlohmann::json j = schema::dephasing_json(empty);
   j["electrons_cooling"] = nullptr;
   j["likely_cause"] = nullptr;
   j["regime"] = nullptr;
@@ -316,7 +316,7 @@ FitRecord SamplePipeline::fit_points(const std::vector<const segment::Sweep*>& s
     rec.sigma0_s = prepared.sigma0_s + result.offset_s;
     rec.sigma0_err_s = result.offset_err_s;
   }
-  rec.result = sweep_fit_json(result, prepared);
+  rec.result = schema::sweep_fit_json(result, prepared);
   // chi2_red: against the estimated noise (null when it is unknown);
   // chi2_red_quantum: fit_sweep's own, in (e^2/(pi h))^2.
   rec.result["chi2_red"] = noise_known ? nlohmann::json(judged.chi2_red) : nlohmann::json(nullptr);
@@ -502,7 +502,7 @@ VerdictRecord SamplePipeline::assess(const FitRecord& trigger) const {
                                                    coldest->temperature_k);
     if (regime.error.empty()) r.regime = std::string(checks::regime_name(regime.regime));
   }
-  nlohmann::json j = dephasing_json(d);
+  nlohmann::json j = schema::dephasing_json(d);
   j["state"] = r.state;  // the verdict's state (it equals the dephasing fit's)
   j["electrons_cooling"] = optional_bool_json(r.electrons_cooling);
   j["likely_cause"] = r.likely_cause ? nlohmann::json(*r.likely_cause) : nlohmann::json(nullptr);
@@ -513,15 +513,15 @@ VerdictRecord SamplePipeline::assess(const FitRecord& trigger) const {
   j["n_fits"] = n_fits;
   j["n_zero_field_points"] = sigma0.size();
   const auto& e = v.evidence;
-  j["evidence"] = {{"t_sat_k", optional_json(e.t_sat_k)},
-                   {"t_sat_err_k", optional_json(e.t_sat_err_k)},
-                   {"t_floor_k", optional_json(e.t_floor_k)},
-                   {"t_floor_err_k", optional_json(e.t_floor_err_k)},
-                   {"floor_over_sat", optional_json(e.floor_over_sat)},
-                   {"thermometer_t_min_k", optional_json(e.thermometer_t_min_k)},
-                   {"interaction_slope_kappa", optional_json(e.interaction_slope_kappa)},
-                   {"interaction_slope_kappa_err", optional_json(e.interaction_slope_kappa_err)},
-                   {"departure_p_value", optional_json(e.departure_p_value)},
+  j["evidence"] = {{"t_sat_k", schema::optional_json(e.t_sat_k)},
+                   {"t_sat_err_k", schema::optional_json(e.t_sat_err_k)},
+                   {"t_floor_k", schema::optional_json(e.t_floor_k)},
+                   {"t_floor_err_k", schema::optional_json(e.t_floor_err_k)},
+                   {"floor_over_sat", schema::optional_json(e.floor_over_sat)},
+                   {"thermometer_t_min_k", schema::optional_json(e.thermometer_t_min_k)},
+                   {"interaction_slope_kappa", schema::optional_json(e.interaction_slope_kappa)},
+                   {"interaction_slope_kappa_err", schema::optional_json(e.interaction_slope_kappa_err)},
+                   {"departure_p_value", schema::optional_json(e.departure_p_value)},
                    {"weak_localization_removed", e.weak_localization_removed},
                    {"verdict_alpha", vopt.alpha}};
   j["verdict_notes"] = v.notes;

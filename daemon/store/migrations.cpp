@@ -4,12 +4,6 @@
 
 namespace lphi::store {
 
-int latest_version(std::span<const Migration> migrations) {
-  int latest = 0;
-  for (const auto& m : migrations) latest = m.version > latest ? m.version : latest;
-  return latest;
-}
-
 Status read_schema_version(const Database& db, int& version) {
   version = 0;
   Statement exists;

@@ -10,20 +10,13 @@
 #include <span>
 
 #include "daemon/store/database.hpp"
+#include "schema/migrations.hpp"
 
 namespace lphi::store {
 
-struct Migration {
-  int version;       // the file's number; versions increase from 1 without holes
-  const char* name;  // the file's name without .sql
-  const char* sql;
-};
-
-// The migrations compiled into this binary, in increasing version.
-std::span<const Migration> embedded_migrations();
-
-// The highest version in `migrations`, 0 for none.
-int latest_version(std::span<const Migration> migrations);
+using schema::embedded_migrations;
+using schema::latest_version;
+using schema::Migration;
 
 // The database's version: the highest recorded in schema_version, 0 for a
 // database without that table.

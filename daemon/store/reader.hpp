@@ -10,7 +10,7 @@
 #include <string>
 #include <vector>
 
-#include "daemon/protocol/reading.hpp"
+#include "schema/protocol/reading.hpp"
 #include "daemon/store/database.hpp"
 
 namespace lphi::store {

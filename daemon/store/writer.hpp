@@ -33,7 +33,7 @@
 #include <thread>
 #include <vector>
 
-#include "daemon/protocol/reading.hpp"
+#include "schema/protocol/reading.hpp"
 #include "daemon/store/database.hpp"
 
 namespace lphi::store {

@@ -19,7 +19,7 @@
 #include <string>
 #include <vector>
 
-#include "daemon/protocol/reading.hpp"
+#include "schema/protocol/reading.hpp"
 
 namespace lphi::drivers {
 

@@ -11,7 +11,7 @@
 #include <string>
 #include <string_view>
 
-#include "daemon/protocol/reading.hpp"
+#include "schema/protocol/reading.hpp"
 
 namespace lphi::drivers {
 

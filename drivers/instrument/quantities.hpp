@@ -16,7 +16,7 @@
 #include <variant>
 #include <vector>
 
-#include "daemon/protocol/reading.hpp"
+#include "schema/protocol/reading.hpp"
 #include "drivers/instrument/driver_config.hpp"
 
 namespace lphi::drivers {

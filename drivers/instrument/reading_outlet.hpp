@@ -18,7 +18,7 @@
 #include <cstdint>
 #include <functional>
 
-#include "daemon/protocol/reading.hpp"
+#include "schema/protocol/reading.hpp"
 #include "drivers/instrument/driver_config.hpp"
 #include "drivers/instrument/quantities.hpp"
 

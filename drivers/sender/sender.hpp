@@ -24,8 +24,8 @@
 #include <vector>
 #include <zmq.hpp>
 
-#include "daemon/protocol/codec.hpp"
-#include "daemon/protocol/reading.hpp"
+#include "schema/protocol/codec.hpp"
+#include "schema/protocol/reading.hpp"
 
 namespace lphi::drivers {
 

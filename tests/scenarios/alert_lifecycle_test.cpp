@@ -18,8 +18,8 @@
 #include <thread>
 #include <vector>
 
-#include "live_run.hpp"
-#include "recording_csv.hpp"
+#include "tests/scenarios/live_run.hpp"
+#include "tests/scenarios/recording_csv.hpp"
 
 // A named namespace: the scenario tests are compiled as one unity source,
 // and these helpers hide the ones of the same names in alerts_test.cpp.

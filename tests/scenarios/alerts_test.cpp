@@ -21,7 +21,7 @@
 #include <thread>
 #include <vector>
 
-#include "live_run.hpp"
+#include "tests/scenarios/live_run.hpp"
 
 namespace {
 

@@ -16,7 +16,7 @@
 #include <string>
 #include <vector>
 
-#include "live_run.hpp"
+#include "tests/scenarios/live_run.hpp"
 
 namespace {
 

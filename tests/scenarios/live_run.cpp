@@ -1,4 +1,4 @@
-#include "live_run.hpp"
+#include "tests/scenarios/live_run.hpp"
 
 #include <unistd.h>
 

@@ -12,7 +12,7 @@
 #include <string>
 #include <vector>
 
-#include "tests/ingest/daemon_process.hpp"
+#include "tests/support/daemon_process.hpp"
 
 namespace lphi::testing {
 

@@ -19,9 +19,9 @@
 #include "drivers/sim/instruments.hpp"
 #include "drivers/sim/recording.hpp"
 #include "drivers/sim/scenario_file.hpp"
-#include "recording_csv.hpp"
-#include "tests/ingest/daemon_process.hpp"
-#include "tests/sim/sim_process.hpp"
+#include "tests/scenarios/recording_csv.hpp"
+#include "tests/support/daemon_process.hpp"
+#include "tests/support/sim_process.hpp"
 
 namespace {
 

@@ -8,7 +8,7 @@
 #include <nlohmann/json.hpp>
 #include <string>
 
-#include "live_run.hpp"
+#include "tests/scenarios/live_run.hpp"
 
 namespace {
 

@@ -1,0 +1,36 @@
+// The JSON objects lphi shows for analysis results: one sweep fit (the keys
+// of `lphi fit --json`) and one L_phi(T) fit (the keys of `lphi dephasing
+// --json`). One writer for each, shared by the offline commands, the live
+// analysis, the control replies and the event socket, so that the same
+// result reads the same everywhere. Non-finite or absent optional values are
+// written as null.
+#pragma once
+
+#include <nlohmann/json.hpp>
+#include <optional>
+
+#include "analysis/conductance.hpp"
+#include "analysis/dephasing.hpp"
+#include "analysis/sweep_fit.hpp"
+
+namespace lphi::schema {
+
+nlohmann::json optional_json(const std::optional<double>& value);
+
+// model, lphi_m, lphi_err_m, alpha, alpha_err, lso_m, lso_err_m, chi2,
+// chi2_red, n_points, field_window_t, b_phi_t, converged, termination,
+// iterations, flags, offset_s, offset_err_s, background_s_per_t2,
+// background_err_s_per_t2, corr_alpha_lphi, corr_lso_lphi, sigma0_s,
+// sigma0_err_s, rsq0_ohm, max_field_t.
+nlohmann::json sweep_fit_json(const fit::SweepFitResult& result,
+                              const conductance::PreparedSweep& prepared);
+
+// state, n_points, exponent_p, exponent_p_err, prefactor_b, prefactor_b_err,
+// lphi_sat_m, lphi_sat_err_m, t_sat_k, t_sat_err_k, chi2_saturating,
+// chi2_power_law, aic_saturating, aic_power_law, f_statistic, p_value,
+// power_law{...}, n_temperatures, errors_from_scatter, expected_exponent,
+// reference_temperature_k, saturation_at_boundary, converged, notes,
+// aak_ratio, aak_ratio_err, aak_rate_per_s_at_1k.
+nlohmann::json dephasing_json(const dephasing::DephasingResult& result);
+
+}  // namespace lphi::schema

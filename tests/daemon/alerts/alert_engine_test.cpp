@@ -1,0 +1,586 @@
+// The alert engine against a real SQLite file: every rule raised and
+// cleared by facts, hysteresis, the acknowledge lifecycle, restart, the
+// control requests and determinism.
+//
+// The expected behaviour is the one stated in daemon/alerts/alert_config.hpp
+// and alert_engine.hpp (limits, hysteresis margins, clear_after counts);
+// the limits themselves are the defaults there (common practice, see
+// analysis/live_checks.hpp).
+#include <cmath>
+#include <limits>
+
+#include "tests/daemon/alerts/alert_test_support.hpp"
+
+namespace lphi::alerts {
+namespace {
+
+using testing::find_rule;
+using testing::good_fit;
+using testing::good_sweep;
+using testing::make_engine;
+using testing::query_int;
+
+class Engine : public ::testing::Test {
+ protected:
+  lphi::testing::TempDir dir;
+  std::string db = dir.file("lphi.db");
+
+  std::int64_t events(std::int64_t id, const std::string& change) {
+    return query_int(db, "SELECT count(*) FROM alert_events WHERE alert_id = " + std::to_string(id) +
+                             " AND change = '" + change + "'");
+  }
+};
+
+// Raised by the first bad fact, still live after clear_after - 1 good ones,
+// cleared by the clear_after-th at that fact's event time.
+TEST_F(Engine, FitFailedRaisedAndCleared) {
+  auto e = make_engine(db);
+  FitFact bad = good_fit(1, 1000.0);
+  bad.ok = false;
+  bad.error = "too few points in the window";
+  e->on_fit(bad);
+  auto live = e->list(false);
+  ASSERT_EQ(live.size(), 1u);
+  EXPECT_EQ(live[0].rule, "fit-failed");
+  EXPECT_EQ(live[0].subject, "film");
+  EXPECT_EQ(live[0].severity, Severity::warning);
+  EXPECT_EQ(live[0].state, State::raised);
+  EXPECT_EQ(live[0].raised_at, 1000.0);
+  EXPECT_NE(live[0].message.find("too few points"), std::string::npos) << live[0].message;
+  EXPECT_EQ(live[0].context["sweep_id"], 1);
+
+  e->on_fit(good_fit(2, 1100.0));
+  ASSERT_TRUE(find_rule(e->list(false), "fit-failed"));  // clear_after = 2
+  e->on_fit(good_fit(3, 1200.0));
+  EXPECT_FALSE(find_rule(e->list(false), "fit-failed"));
+  const auto all = e->list(true);
+  auto cleared = find_rule(all, "fit-failed");
+  ASSERT_TRUE(cleared);
+  EXPECT_EQ(cleared->state, State::cleared);
+  EXPECT_EQ(cleared->cleared_at, std::optional<double>(1200.0));
+  EXPECT_EQ(events(cleared->id, "raised"), 1);
+  EXPECT_EQ(events(cleared->id, "cleared"), 1);
+  // A fit that converged=false is a failure as well.
+  FitFact stuck = good_fit(4, 1300.0);
+  stuck.converged = false;
+  e->on_fit(stuck);
+  auto again = find_rule(e->list(false), "fit-failed");
+  ASSERT_TRUE(again);
+  EXPECT_NE(again->message.find("did not converge"), std::string::npos);
+  EXPECT_GT(again->id, cleared->id);  // a new alert after a clear
+}
+
+TEST_F(Engine, LphiRangeBothSides) {
+  auto e = make_engine(db);
+  FitFact small = good_fit(1, 10.0);
+  small.lphi_m = 5e-9;  // below min_m = 10 nm
+  e->on_fit(small);
+  auto a = find_rule(e->list(false), "lphi-range");
+  ASSERT_TRUE(a);
+  EXPECT_EQ(a->value, std::optional<double>(5e-9));
+  const std::int64_t first = a->id;
+  FitFact large = good_fit(2, 20.0);
+  large.lphi_m = 2e-4;  // above max_m = 100 um: the same live alert, updated
+  e->on_fit(large);
+  a = find_rule(e->list(false), "lphi-range");
+  ASSERT_TRUE(a);
+  EXPECT_EQ(a->id, first);
+  EXPECT_EQ(a->count, 2);
+  EXPECT_EQ(a->value, std::optional<double>(2e-4));
+  EXPECT_EQ(events(first, "updated"), 1);
+  // 10.5 nm is inside but not by the 10 % margin (11 nm): no progress.
+  FitFact edge = good_fit(3, 30.0);
+  edge.lphi_m = 10.5e-9;
+  e->on_fit(edge);
+  e->on_fit(edge);
+  EXPECT_TRUE(find_rule(e->list(false), "lphi-range"));
+  e->on_fit(good_fit(4, 40.0));
+  e->on_fit(good_fit(5, 50.0));
+  EXPECT_FALSE(find_rule(e->list(false), "lphi-range"));
+  // A failed fit has no L_phi and leaves lphi-range alone.
+  FitFact failed = good_fit(6, 60.0);
+  failed.ok = false;
+  failed.lphi_m = 0.0;
+  e->on_fit(failed);
+  EXPECT_FALSE(find_rule(e->list(false), "lphi-range"));
+}
+
+// A chi2_red flapping around the limit raises one alert, which only clears
+// once chi2_red stays below limit * (1 - hysteresis) = 3 * 0.8 = 2.4 for
+// clear_after = 2 fits in a row.
+TEST_F(Engine, FlappingChiSquareRaisesOnce) {
+  auto e = make_engine(db);
+  const double chi2[] = {3.1, 2.9, 3.2, 2.8, 3.05, 2.5, 2.3, 3.3, 2.0, 2.6, 2.0};
+  double t = 0.0;
+  std::int64_t sweep = 0;
+  for (double c : chi2) {
+    FitFact f = good_fit(++sweep, t += 60.0);
+    f.chi2_red = c;
+    e->on_fit(f);
+  }
+  // 2.0, 2.6 (band: the run restarts), 2.0: one good fit only, still live.
+  auto all = e->list(true);
+  ASSERT_EQ(all.size(), 1u);
+  EXPECT_EQ(all[0].rule, "fit-chi2");
+  EXPECT_EQ(all[0].state, State::raised);
+  EXPECT_EQ(all[0].count, 4);  // 3.1, 3.2, 3.05, 3.3 above 3
+  EXPECT_EQ(all[0].value, std::optional<double>(3.3));
+  FitFact f = good_fit(++sweep, t += 60.0);
+  f.chi2_red = 1.0;
+  e->on_fit(f);
+  all = e->list(true);
+  ASSERT_EQ(all.size(), 1u);
+  EXPECT_EQ(all[0].state, State::cleared);
+  EXPECT_EQ(query_int(db, "SELECT count(*) FROM alert_events WHERE change = 'raised'"), 1);
+  EXPECT_EQ(query_int(db, "SELECT count(*) FROM alerts"), 1);
+}
+
+TEST_F(Engine, SweepRulesRaisedAndCleared) {
+  auto e = make_engine(db);
+  SweepFact s = good_sweep(1, 500.0);
+  s.temperature_unstable = true;
+  s.temperature_spread_k = 0.004;
+  s.n_overload = 3;
+  s.max_quadrature_ratio = std::numeric_limits<double>::infinity();  // X = 0, Y != 0
+  s.excitation_ratio = 2.5;
+  e->on_sweep(s);
+  auto live = e->list(false);
+  ASSERT_EQ(live.size(), 4u);
+  auto unstable = find_rule(live, "temperature-unstable");
+  auto overload = find_rule(live, "lockin-overload");
+  auto quadrature = find_rule(live, "quadrature");
+  auto heating = find_rule(live, "excitation-heating");
+  ASSERT_TRUE(unstable && overload && quadrature && heating);
+  EXPECT_EQ(unstable->severity, Severity::info);
+  EXPECT_EQ(overload->value, std::optional<double>(3.0));
+  EXPECT_FALSE(quadrature->value.has_value());  // infinite: no number, said in the context
+  EXPECT_EQ(quadrature->context["max_quadrature_ratio"], "infinite");
+  EXPECT_EQ(heating->value, std::optional<double>(2.5));
+  // Quadrature 0.09 is inside but within the 20 % margin (0.08): not good.
+  SweepFact edge = good_sweep(2, 600.0);
+  edge.max_quadrature_ratio = 0.09;
+  e->on_sweep(edge);
+  e->on_sweep(good_sweep(3, 700.0));
+  live = e->list(false);
+  ASSERT_EQ(live.size(), 1u);
+  EXPECT_EQ(live[0].rule, "quadrature");
+  e->on_sweep(good_sweep(4, 800.0));
+  EXPECT_TRUE(e->list(false).empty());
+  for (const Alert& a : e->list(true)) {
+    EXPECT_EQ(a.state, State::cleared) << a.rule;
+    EXPECT_EQ(a.cleared_at, std::optional<double>(a.rule == "quadrature" ? 800.0 : 700.0)) << a.rule;
+  }
+}
+
+TEST_F(Engine, OverloadLimitIsAPointCount) {
+  AlertConfig c;
+  c.lockin_overload.max_points = 5;
+  auto e = make_engine(db, c);
+  SweepFact s = good_sweep(1, 1.0);
+  s.n_overload = 5;  // at the limit: fine
+  e->on_sweep(s);
+  EXPECT_TRUE(e->list(false).empty());
+  s.n_overload = 6;
+  e->on_sweep(s);
+  EXPECT_TRUE(find_rule(e->list(false), "lockin-overload"));
+}
+
+TEST_F(Engine, VerdictRules) {
+  auto e = make_engine(db);
+  VerdictFact v{"film", 100.0, "power-law", true, std::nullopt, std::nullopt, std::nullopt};
+  e->on_verdict(v);
+  EXPECT_TRUE(e->list(false).empty());
+  v = {"film", 200.0, "saturating", true, "unknown", 0.05, std::nullopt};
+  e->on_verdict(v);
+  auto saturating = find_rule(e->list(false), "verdict-saturating");
+  ASSERT_TRUE(saturating);
+  EXPECT_EQ(saturating->severity, Severity::info);
+  EXPECT_EQ(saturating->value, std::optional<double>(0.05));
+  // saturated: raised at once; saturating clears after two verdicts outside it.
+  v = {"film", 300.0, "saturated", false, "electron-heating-or-noise", 0.04, 2e-6};
+  e->on_verdict(v);
+  auto live = e->list(false);
+  EXPECT_TRUE(find_rule(live, "verdict-saturating"));
+  auto saturated = find_rule(live, "verdict-saturated");
+  ASSERT_TRUE(saturated);
+  EXPECT_EQ(saturated->severity, Severity::warning);
+  EXPECT_NE(saturated->message.find("electron-heating-or-noise"), std::string::npos);
+  auto cooling = find_rule(live, "electrons-not-cooling");
+  ASSERT_TRUE(cooling);
+  EXPECT_EQ(cooling->severity, Severity::critical);
+  v.t = 400.0;
+  v.electrons_cooling = std::nullopt;  // unknown: neither good nor bad
+  e->on_verdict(v);
+  live = e->list(false);
+  EXPECT_FALSE(find_rule(live, "verdict-saturating"));
+  EXPECT_TRUE(find_rule(live, "electrons-not-cooling"));
+  v = {"film", 500.0, "power-law", true, std::nullopt, std::nullopt, std::nullopt};
+  e->on_verdict(v);
+  v.t = 600.0;
+  e->on_verdict(v);
+  EXPECT_TRUE(e->list(false).empty());
+}
+
+// Messages name a sweep by the index `lphi sweeps` lists (from 0), not by
+// its row id in the database (from 1); the context keeps both.
+TEST_F(Engine, MessagesNameTheSweepIndexPeopleSee) {
+  auto e = make_engine(db);
+  FitFact failed = good_fit(8, 100.0);  // row id 8, index 7
+  ASSERT_EQ(failed.sweep_index, 7);
+  failed.ok = false;
+  failed.error = "the sweep could not be prepared";
+  e->on_fit(failed);
+  SweepFact overloaded = good_sweep(8, 100.0);
+  overloaded.n_overload = 12;
+  e->on_sweep(overloaded);
+  for (const char* rule : {"fit-failed", "lockin-overload"}) {
+    auto a = find_rule(e->list(false), rule);
+    ASSERT_TRUE(a) << rule;
+    EXPECT_NE(a->message.find("sweep 7"), std::string::npos) << a->message;
+    EXPECT_EQ(a->message.find("sweep 8"), std::string::npos) << a->message;
+    EXPECT_EQ(a->context["sweep_index"], 7) << rule;
+    EXPECT_EQ(a->context["sweep_id"], 8) << rule;
+  }
+}
+
+// A new cooldown's verdicts judge the rules afresh: insufficient-data
+// clears verdict-saturated (clear_after 2); a null electrons_cooling keeps
+// electrons-not-cooling (no evidence either way), true clears it. The
+// cooldown is in the context and the message.
+TEST_F(Engine, ANewCooldownClearsTheVerdictAlertsOfTheLastOne) {
+  auto e = make_engine(db);
+  VerdictFact hot{"film", 100.0, "saturated", false, "electron-heating-or-noise", 0.06, 1e-6};
+  hot.cooldown = 1;
+  e->on_verdict(hot);
+  auto saturated = find_rule(e->list(false), "verdict-saturated");
+  ASSERT_TRUE(saturated);
+  EXPECT_EQ(saturated->context["cooldown"], 1);
+  EXPECT_NE(saturated->message.find("cooldown 1"), std::string::npos) << saturated->message;
+  VerdictFact fresh{"film", 200.0, "insufficient-data", std::nullopt, std::nullopt, std::nullopt, std::nullopt};
+  fresh.cooldown = 2;
+  e->on_verdict(fresh);
+  fresh.t = 300.0;
+  e->on_verdict(fresh);
+  EXPECT_FALSE(find_rule(e->list(false), "verdict-saturated"));
+  EXPECT_TRUE(find_rule(e->list(false), "electrons-not-cooling")) << "null is no evidence";
+  VerdictFact cool{"film", 400.0, "power-law", true, std::nullopt, std::nullopt, std::nullopt};
+  cool.cooldown = 2;
+  e->on_verdict(cool);
+  EXPECT_TRUE(find_rule(e->list(false), "electrons-not-cooling")) << "clear_after = 2";
+  cool.t = 500.0;
+  e->on_verdict(cool);
+  EXPECT_TRUE(e->list(false).empty());
+  auto cleared = find_rule(e->list(true), "electrons-not-cooling");
+  ASSERT_TRUE(cleared);
+  EXPECT_EQ(cleared->cleared_at, std::optional<double>(500.0));
+}
+
+TEST_F(Engine, HealthRules) {
+  AlertConfig c;
+  c.source_silent.silent_s = 30.0;
+  c.gap.quiet_s = 100.0;
+  auto e = make_engine(db, c);
+  const double t0 = 1.7e9;
+  HealthFact h;
+  h.now_unix = t0;
+  h.sources = {{"lockin", t0 - 1.0, 2}, {"thermometer", std::nullopt, 0}};
+  h.disk_free_bytes = 50e9;
+  h.writer_lag_s = 0.1;
+  e->on_health(h);
+  EXPECT_TRUE(e->list(false).empty());  // gaps seen at the first tick are history
+
+  h.now_unix = t0 + 40.0;  // no thermometer reading since the first tick 40 s ago
+  h.sources = {{"lockin", t0 + 39.0, 5}, {"thermometer", std::nullopt, 0}};
+  h.disk_free_bytes = 1e9;   // below 2 GB
+  h.writer_lag_s = 12.0;     // above 10 s
+  e->on_health(h);
+  auto live = e->list(false);
+  ASSERT_EQ(live.size(), 4u);
+  auto silent = find_rule(live, "source-silent", "thermometer");
+  ASSERT_TRUE(silent);
+  EXPECT_EQ(silent->value, std::optional<double>(40.0));
+  EXPECT_EQ(silent->raised_at, t0 + 40.0);
+  auto gap = find_rule(live, "gap", "lockin");
+  ASSERT_TRUE(gap);
+  EXPECT_EQ(gap->value, std::optional<double>(3.0));  // 5 - 2 new gaps
+  ASSERT_TRUE(find_rule(live, "disk-space", ""));
+  ASSERT_TRUE(find_rule(live, "writer-lag", ""));
+
+  // Disk at 2.1 GB is above the limit but within its 10 % margin; lag 4 s
+  // is below 10 * (1 - 0.5) = 5 s (writer-lag needs 3 such ticks).
+  h.now_unix = t0 + 41.0;
+  h.sources = {{"lockin", t0 + 41.0, 5}, {"thermometer", t0 + 41.0, 0}};
+  h.disk_free_bytes = 2.1e9;
+  h.writer_lag_s = 4.0;
+  e->on_health(h);
+  live = e->list(false);
+  EXPECT_FALSE(find_rule(live, "source-silent", "thermometer"));
+  EXPECT_TRUE(find_rule(live, "disk-space", ""));
+  EXPECT_TRUE(find_rule(live, "gap", "lockin"));
+  h.now_unix = t0 + 42.0;
+  h.disk_free_bytes = 2.3e9;
+  e->on_health(h);
+  h.now_unix = t0 + 43.0;
+  e->on_health(h);
+  live = e->list(false);
+  EXPECT_FALSE(find_rule(live, "disk-space", ""));
+  EXPECT_FALSE(find_rule(live, "writer-lag", ""));
+  EXPECT_TRUE(find_rule(live, "gap", "lockin"));  // quiet for only 3 s
+  h.now_unix = t0 + 140.0;                                // 100 s after the last new gap
+  h.sources = {{"lockin", t0 + 140.0, 5}, {"thermometer", t0 + 140.0, 0}};
+  e->on_health(h);
+  EXPECT_TRUE(e->list(false).empty());
+}
+
+// While a health condition lasts, the once-a-second ticks update the live
+// alert in memory but store an update at most once a minute.
+TEST_F(Engine, HealthUpdatesAreThrottled) {
+  auto e = make_engine(db);
+  HealthFact h;
+  h.writer_lag_s = 20.0;
+  for (int i = 0; i < 30; ++i) {
+    h.now_unix = 1.7e9 + i;
+    e->on_health(h);
+  }
+  auto lag = find_rule(e->list(false), "writer-lag", "");
+  ASSERT_TRUE(lag);
+  EXPECT_EQ(lag->count, 30);
+  EXPECT_EQ(find_rule(e->list(true), "writer-lag", "")->count, 30);  // all: the live state too
+  EXPECT_EQ(events(lag->id, "raised"), 1);
+  EXPECT_EQ(events(lag->id, "updated"), 0);
+}
+
+TEST_F(Engine, DisabledRuleStaysQuiet) {
+  AlertConfig c;
+  c.fit_failed.enabled = false;
+  auto e = make_engine(db, c);
+  FitFact bad = good_fit(1, 1.0);
+  bad.ok = false;
+  e->on_fit(bad);
+  EXPECT_TRUE(e->list(true).empty());
+}
+
+TEST_F(Engine, AcknowledgeLifecycle) {
+  auto e = make_engine(db);
+  FitFact bad = good_fit(1, 100.0);
+  bad.chi2_red = 7.0;
+  e->on_fit(bad);
+  const std::int64_t id = e->list(false).at(0).id;
+
+  const auto reply = e->handle_request({{"type", "ack"}, {"id", id}});
+  EXPECT_EQ(reply, (nlohmann::json{{"type", "ack"}, {"id", id}, {"state", "acknowledged"}}));
+  auto live = e->list(false);
+  ASSERT_EQ(live.size(), 1u);  // acknowledged alerts stay live until cleared
+  EXPECT_EQ(live[0].state, State::acknowledged);
+  ASSERT_TRUE(live[0].acked_at.has_value());
+  EXPECT_EQ(events(id, "acknowledged"), 1);
+  // Twice is harmless and stores nothing new.
+  EXPECT_EQ(e->handle_request({{"type", "ack"}, {"id", id}})["type"], "ack");
+  EXPECT_EQ(events(id, "acknowledged"), 1);
+
+  // Re-triggered while acknowledged: updated, still acknowledged.
+  bad.sweep_id = 2;
+  bad.t = 200.0;
+  bad.chi2_red = 9.0;
+  e->on_fit(bad);
+  live = e->list(false);
+  EXPECT_EQ(live.at(0).state, State::acknowledged);
+  EXPECT_EQ(live.at(0).value, std::optional<double>(9.0));
+
+  e->on_fit(good_fit(3, 300.0));
+  e->on_fit(good_fit(4, 400.0));
+  EXPECT_TRUE(e->list(false).empty());
+  const auto cleared = e->handle_request({{"type", "ack"}, {"id", id}});
+  EXPECT_EQ(cleared["type"], "error");
+  EXPECT_NE(cleared["detail"].get<std::string>().find("already cleared"), std::string::npos) << cleared;
+  const auto missing = e->handle_request({{"type", "ack"}, {"id", 999}});
+  EXPECT_EQ(missing["type"], "error");
+  EXPECT_NE(missing["detail"].get<std::string>().find("no alert has id 999"), std::string::npos);
+  // The stored row keeps every time.
+  EXPECT_EQ(query_int(db, "SELECT count(*) FROM alerts WHERE id = " + std::to_string(id) +
+                              " AND state = 'cleared' AND raised_at = 100 AND cleared_at = 400"
+                              " AND acked_at IS NOT NULL"),
+            1);
+}
+
+TEST_F(Engine, RestartKeepsStateAndContinuesIds) {
+  std::int64_t acked = 0;
+  {
+    auto e = make_engine(db);
+    FitFact bad = good_fit(1, 100.0);
+    bad.ok = false;
+    bad.chi2_red = 8.0;
+    e->on_fit(bad);  // fit-failed only (a failed fit has no chi-square to judge)
+    SweepFact s = good_sweep(1, 100.0);
+    s.temperature_unstable = true;
+    e->on_sweep(s);
+    acked = find_rule(e->list(false), "fit-failed")->id;
+    ASSERT_TRUE(e->acknowledge(acked, 150.0).ok);
+    e->on_sweep(good_sweep(2, 200.0));  // one of two good sweeps before the restart
+  }
+  auto e = make_engine(db);
+  auto live = e->list(false);
+  ASSERT_EQ(live.size(), 2u);
+  auto failed = find_rule(live, "fit-failed");
+  ASSERT_TRUE(failed);
+  EXPECT_EQ(failed->id, acked);
+  EXPECT_EQ(failed->state, State::acknowledged);
+  EXPECT_EQ(failed->acked_at, std::optional<double>(150.0));
+  EXPECT_EQ(failed->raised_at, 100.0);
+  // The progress toward the clear survived: one more good sweep clears.
+  e->on_sweep(good_sweep(3, 300.0));
+  EXPECT_FALSE(find_rule(e->list(false), "temperature-unstable"));
+  // A new alert continues the ids.
+  FitFact bad = good_fit(4, 400.0);
+  bad.lphi_m = 1.0;
+  e->on_fit(bad);
+  auto range = find_rule(e->list(false), "lphi-range");
+  ASSERT_TRUE(range);
+  EXPECT_EQ(range->id, 3);
+}
+
+// A source silent before a restart is not "back" because lphid restarted:
+// only a reading that arrives clears source-silent. A gap alert from before
+// waits a full quiet_s after the restart.
+TEST_F(Engine, RestartKeepsHealthAlerts) {
+  AlertConfig c;
+  c.source_silent.silent_s = 30.0;
+  c.gap.quiet_s = 100.0;
+  const double t0 = 1.7e9;
+  {
+    auto e = make_engine(db, c);
+    HealthFact h;
+    h.now_unix = t0;
+    h.sources = {{"mxc", std::nullopt, 0}};
+    e->on_health(h);
+    h.now_unix = t0 + 31.0;
+    h.sources = {{"mxc", std::nullopt, 4}};
+    e->on_health(h);
+    ASSERT_EQ(e->list(false).size(), 2u);
+  }
+  auto e = make_engine(db, c);
+  HealthFact h;
+  h.now_unix = t0 + 40.0;
+  h.sources = {{"mxc", std::nullopt, 4}};
+  e->on_health(h);
+  auto live = e->list(false);
+  EXPECT_TRUE(find_rule(live, "source-silent", "mxc"));
+  EXPECT_TRUE(find_rule(live, "gap", "mxc"));
+  h.now_unix = t0 + 41.0;
+  h.sources = {{"mxc", t0 + 41.0, 4}};
+  e->on_health(h);
+  live = e->list(false);
+  EXPECT_FALSE(find_rule(live, "source-silent", "mxc"));
+  EXPECT_TRUE(find_rule(live, "gap", "mxc"));
+  h.now_unix = t0 + 140.0;  // 100 s after the restart
+  h.sources = {{"mxc", t0 + 140.0, 4}};
+  e->on_health(h);
+  EXPECT_TRUE(e->list(false).empty());
+  EXPECT_EQ(query_int(db, "SELECT count(*) FROM alerts"), 2);  // nothing raised twice
+}
+
+// The same facts give the same alerts (ids, times, values, messages).
+TEST_F(Engine, SameFactsSameAlerts) {
+  auto run = [](const std::string& path) {
+    auto e = make_engine(path);
+    for (int i = 0; i < 40; ++i) {
+      const double t = 1000.0 + 60.0 * i;
+      SweepFact s = good_sweep(i, t);
+      s.temperature_unstable = (i % 7 == 3);
+      s.max_quadrature_ratio = 0.05 + 0.01 * (i % 9);
+      e->on_sweep(s);
+      FitFact f = good_fit(i, t);
+      f.chi2_red = 2.0 + 0.15 * (i % 11);
+      f.ok = (i % 13 != 5);
+      e->on_fit(f);
+      VerdictFact v{"film", t, i < 20 ? "power-law" : (i < 30 ? "saturating" : "saturated"),
+                    i < 25, std::nullopt, std::nullopt, std::nullopt};
+      e->on_verdict(v);
+    }
+    nlohmann::json out = nlohmann::json::array();
+    for (const Alert& a : e->list(true)) out.push_back(alert_json(a));
+    return out;
+  };
+  const auto first = run(db);
+  const auto second = run(dir.file("again.db"));
+  EXPECT_GT(first.size(), 5u);
+  EXPECT_EQ(first, second);
+}
+
+TEST_F(Engine, AlertsRequest) {
+  auto e = make_engine(db);
+  FitFact bad = good_fit(1, 10.0, "film");
+  bad.chi2_red = 10.0;
+  e->on_fit(bad);
+  bad.sample = "wire";
+  e->on_fit(bad);
+  for (int i = 2; i < 4; ++i) e->on_fit(good_fit(i, 10.0 * i, "wire"));  // clears the wire's
+
+  const auto live = e->handle_request({{"type", "alerts"}});
+  ASSERT_EQ(live["type"], "alerts");
+  ASSERT_EQ(live["alerts"].size(), 1u);
+  const auto& a = live["alerts"][0];
+  for (const char* key : {"id", "rule", "severity", "state", "raised_at", "acked_at", "cleared_at",
+                          "message", "subject", "value", "context"}) {
+    EXPECT_TRUE(a.contains(key)) << key;
+  }
+  EXPECT_EQ(a["subject"], "film");
+  EXPECT_EQ(a["severity"], "warning");
+  EXPECT_EQ(a["state"], "raised");
+  EXPECT_TRUE(a["acked_at"].is_null());
+
+  EXPECT_EQ(e->handle_request({{"type", "alerts"}, {"all", true}})["alerts"].size(), 2u);
+  const auto wire = e->handle_request({{"type", "alerts"}, {"all", true}, {"sample", "wire"}});
+  ASSERT_EQ(wire["alerts"].size(), 1u);
+  EXPECT_EQ(wire["alerts"][0]["state"], "cleared");
+  EXPECT_EQ(wire["alerts"][0]["cleared_at"], 30.0);
+  EXPECT_TRUE(e->handle_request({{"type", "alerts"}, {"sample", "nobody"}})["alerts"].empty());
+}
+
+TEST_F(Engine, BadRequestsNameWhatIsWrong) {
+  auto e = make_engine(db);
+  struct Case {
+    nlohmann::json request;
+    std::string reason;
+    std::string words;
+  };
+  const Case cases[] = {
+      {{{"type", "alerts"}, {"all", "yes"}}, "wrong_type", "\"all\""},
+      {{{"type", "alerts"}, {"sampel", "film"}}, "unknown_field", "sampel"},
+      {{{"type", "ack"}}, "missing_field", "\"id\""},
+      {{{"type", "ack"}, {"id", "7"}}, "wrong_type", "\"id\""},
+      {{{"type", "ack"}, {"id", 1.5}}, "wrong_type", "\"id\""},
+      {{{"type", "ack"}, {"id", 7}, {"force", true}}, "unknown_field", "force"},
+      {{{"type", "mute"}}, "unknown_type", "mute"},
+      {nlohmann::json::array(), "not_an_object", "object"},
+  };
+  for (const Case& c : cases) {
+    const auto reply = e->handle_request(c.request);
+    EXPECT_EQ(reply["type"], "error") << c.request;
+    EXPECT_EQ(reply["reason"], c.reason) << c.request;
+    EXPECT_NE(reply["detail"].get<std::string>().find(c.words), std::string::npos) << reply;
+  }
+}
+
+// alert_events keeps the event time and the wall time of each change.
+TEST_F(Engine, EventsStoreBothTimes) {
+  auto e = make_engine(db);
+  FitFact bad = good_fit(1, 1234.5);
+  bad.ok = false;
+  const auto before = static_cast<std::int64_t>(
+      std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count());
+  e->on_fit(bad);
+  EXPECT_EQ(query_int(db, "SELECT count(*) FROM alert_events WHERE t = 1234.5 AND change = 'raised'"), 1);
+  EXPECT_GE(query_int(db, "SELECT CAST(wall_time AS INTEGER) FROM alert_events"), before);
+}
+
+TEST_F(Engine, UnopenableDatabaseIsAnError) {
+  std::unique_ptr<AlertEngine> e;
+  const auto s = AlertEngine::create({}, dir.file("no/such/dir/lphi.db"), nullptr, e);
+  EXPECT_FALSE(s.ok);
+  EXPECT_NE(s.message.find("no/such/dir"), std::string::npos) << s.message;
+  EXPECT_EQ(e, nullptr);
+}
+
+}  // namespace
+}  // namespace lphi::alerts
