@@ -97,16 +97,16 @@ int serve(const std::string& dir_option, const std::string& config_option, const
   wo.synchronous = config.synchronous_full ? lphi::store::Synchronous::full : lphi::store::Synchronous::normal;
   std::unique_ptr<lphi::store::StoreWriter> writer;
   if (auto s = lphi::store::StoreWriter::open(lphi::store::database_path(dir), wo, writer); !s) {
-    spdlog::critical("{}", s.message);
-    std::cerr << "lphid: " << s.message << "\n";
+    spdlog::critical("{}", s.message());
+    std::cerr << "lphid: " << s.message() << "\n";
     return 1;
   }
   std::map<std::string, lphi::store::SourceState> sources;
   for (const auto& src : config.sources) {
     lphi::store::SourceState state;
     if (auto s = writer->register_source(src.name, src.kind, state); !s) {
-      spdlog::critical("{}", s.message);
-      std::cerr << "lphid: " << s.message << "\n";
+      spdlog::critical("{}", s.message());
+      std::cerr << "lphid: " << s.message() << "\n";
       return 1;
     }
     sources[src.name] = state;
@@ -116,8 +116,8 @@ int serve(const std::string& dir_option, const std::string& config_option, const
                                smp.excitation_a, smp.lockin, smp.thermometer, smp.field,
                                smp.gain, smp.diffusion_m2s, smp.mean_free_path_m, smp.alpha_fixed};
     if (auto s = writer->register_sample(row); !s) {
-      spdlog::critical("{}", s.message);
-      std::cerr << "lphid: " << s.message << "\n";
+      spdlog::critical("{}", s.message());
+      std::cerr << "lphid: " << s.message() << "\n";
       return 1;
     }
   }
@@ -144,15 +144,15 @@ int serve(const std::string& dir_option, const std::string& config_option, const
   }
   std::unique_ptr<lphi::ingest::IngestServer> server;
   if (auto s = lphi::ingest::IngestServer::create(context, io, *writer, sources, server); !s) {
-    spdlog::critical("{}", s.message);
-    std::cerr << "lphid: " << s.message << "\n";
+    spdlog::critical("{}", s.message());
+    std::cerr << "lphid: " << s.message() << "\n";
     writer->stop();
     return 1;
   }
   lphi::ingest::DriverHost drivers;
   if (auto s = drivers.create(config, sources, *server); !s) {
-    spdlog::critical("{}", s.message);
-    std::cerr << "lphid: " << s.message << "\n";
+    spdlog::critical("{}", s.message());
+    std::cerr << "lphid: " << s.message() << "\n";
     server.reset();
     writer->stop();
     return 1;
@@ -170,7 +170,7 @@ int serve(const std::string& dir_option, const std::string& config_option, const
   if (auto e = lphi::config::prepare_ipc_endpoint(io.endpoints.events)) return fail(*e);
   std::unique_ptr<lphi::alerts::EventPublisher> events;
   if (auto s = lphi::alerts::EventPublisher::create(context, io.endpoints.events, events); !s) {
-    return fail(s.message);
+    return fail(s.message());
   }
   io.endpoints.events = events->endpoint();
   if (auto e = lphi::config::restrict_ipc_endpoint(io.endpoints.events)) spdlog::warn("{}", *e);
@@ -178,14 +178,14 @@ int serve(const std::string& dir_option, const std::string& config_option, const
   if (auto s = lphi::alerts::AlertEngine::create(config.alerts, lphi::store::database_path(dir), events.get(),
                                                   engine);
       !s) {
-    return fail(s.message);
+    return fail(s.message());
   }
   lphi::live::LiveOptions lo;
   lo.data_dir = dir;
   lo.writer = writer.get();
   std::unique_ptr<lphi::live::LiveAnalysis> live;
   if (auto s = lphi::live::LiveAnalysis::create(config, lo, engine.get(), events.get(), live); !s) {
-    return fail(s.message);
+    return fail(s.message());
   }
   for (const auto& type : lphi::live::LiveAnalysis::request_types()) {
     server->add_control_handler(type, [&live](const nlohmann::json& r) { return live->handle_request(r); });

@@ -128,7 +128,7 @@ struct AlertEngine::Impl {
                std::optional<double> value, const json& context) {
     if (auto st = store.record(s, is_new, change, t, wall_now(), value, context); !st) {
       ++counters.store_errors;
-      spdlog::error("alert {}: cannot store the change ({}): {}", s.alert.id, change, st.message);
+      spdlog::error("alert {}: cannot store the change ({}): {}", s.alert.id, change, st.message());
     }
   }
 
@@ -199,7 +199,7 @@ struct AlertEngine::Impl {
         if (s.good_count < rs.clear_after) {
           if (auto st = store.record_good_count(s.alert.id, s.good_count); !st) {
             ++counters.store_errors;
-            spdlog::error("alert {}: {}", s.alert.id, st.message);
+            spdlog::error("alert {}: {}", s.alert.id, st.message());
           }
           return;
         }
@@ -216,7 +216,7 @@ struct AlertEngine::Impl {
         it->second.good_count = 0;
         if (auto st = store.record_good_count(it->second.alert.id, 0); !st) {
           ++counters.store_errors;
-          spdlog::error("alert {}: {}", it->second.alert.id, st.message);
+          spdlog::error("alert {}: {}", it->second.alert.id, st.message());
         }
         return;
       }
@@ -229,7 +229,7 @@ struct AlertEngine::Impl {
 AlertEngine::AlertEngine(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
 AlertEngine::~AlertEngine() = default;
 
-store::Status AlertEngine::create(const AlertConfig& config, const std::string& database_path,
+Status AlertEngine::create(const AlertConfig& config, const std::string& database_path,
                                   EventPublisher* events, std::unique_ptr<AlertEngine>& out) {
   auto impl = std::make_unique<Impl>();
   impl->config = config;
@@ -250,7 +250,7 @@ store::Status AlertEngine::create(const AlertConfig& config, const std::string& 
   }
   if (!impl->live.empty()) spdlog::info("alerts: {} not cleared from before", impl->live.size());
   out.reset(new AlertEngine(std::move(impl)));
-  return store::Status::success();
+  return Status::success();
 }
 
 void AlertEngine::on_fit(const FitFact& f) {
@@ -497,23 +497,23 @@ void AlertEngine::on_health(const HealthFact& f) {
   m.evaluate("writer-lag", "", settings(c.writer_lag), std::move(lag), now, true);
 }
 
-store::Status AlertEngine::acknowledge(std::int64_t id, double now_unix) {
+Status AlertEngine::acknowledge(std::int64_t id, double now_unix) {
   Impl& m = *impl_;
   std::lock_guard lock(m.mutex);
   for (auto& [key, s] : m.live) {
     if (s.alert.id != id) continue;
-    if (s.alert.state == State::acknowledged) return store::Status::success();
+    if (s.alert.state == State::acknowledged) return Status::success();
     s.alert.state = State::acknowledged;
     s.alert.acked_at = now_unix;
     m.persist(s, false, "acknowledged", now_unix, s.alert.value, json::object());
     m.announce(s.alert, "acknowledged", true);
-    return store::Status::success();
+    return Status::success();
   }
   bool found = false;
   StoredAlert stored;
   if (auto s = m.store.find(id, found, stored); !s) return s;
-  if (!found) return store::Status::failure("no alert has id " + std::to_string(id));
-  return store::Status::failure(fmt::format("alert {} ({}) is already cleared", id, stored.alert.rule));
+  if (!found) return Status::not_found("no alert has id " + std::to_string(id));
+  return Status::conflict(fmt::format("alert {} ({}) is already cleared", id, stored.alert.rule));
 }
 
 std::vector<Alert> AlertEngine::list(bool all, std::optional<std::string> subject) {
@@ -530,7 +530,7 @@ std::vector<Alert> AlertEngine::list(bool all, std::optional<std::string> subjec
       }
       return out;
     } else {
-      spdlog::error("alerts: {}", s.message);
+      spdlog::error("alerts: {}", s.message());
     }
     out.clear();  // the live ones below, at least
   }
@@ -590,7 +590,7 @@ json AlertEngine::handle_request(const json& request) {
       }
     }
     if (!id) return error(Reason::missing_field, "an ack request needs \"id\"");
-    if (auto s = acknowledge(*id, wall_now()); !s) return error(Reason::value_out_of_range, s.message);
+    if (auto s = acknowledge(*id, wall_now()); !s) return error(Reason::value_out_of_range, s.message());
     return {{"type", "ack"}, {"id", *id}, {"state", "acknowledged"}};
   }
 

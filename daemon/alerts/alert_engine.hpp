@@ -141,7 +141,7 @@ class AlertEngine {
     std::uint64_t hook_queue_full = 0;    // dropped: hook_queue changes already waiting
   };
 
-  static store::Status create(const AlertConfig& config, const std::string& database_path,
+  static Status create(const AlertConfig& config, const std::string& database_path,
                               EventPublisher* events, std::unique_ptr<AlertEngine>& out);
 
   AlertEngine(const AlertEngine&) = delete;
@@ -164,7 +164,7 @@ class AlertEngine {
 
   // Acknowledges a live alert at wall time now_unix. Fails naming why: no
   // alert with that id, or it is already cleared.
-  store::Status acknowledge(std::int64_t id, double now_unix);
+  Status acknowledge(std::int64_t id, double now_unix);
 
   Counters counters() const;
 

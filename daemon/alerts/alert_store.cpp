@@ -7,7 +7,6 @@ namespace lphi::alerts {
 namespace {
 
 using store::Statement;
-using store::Status;
 
 constexpr const char* select_columns =
     "SELECT id, rule, subject, severity, state, raised_at, acked_at, cleared_at, value, count,"

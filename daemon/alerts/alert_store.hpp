@@ -23,24 +23,24 @@ struct StoredAlert {
 class AlertStore {
  public:
   // Opens (creating if needed) the database and applies pending migrations.
-  static store::Status open(const std::string& database_path, AlertStore& out);
+  static Status open(const std::string& database_path, AlertStore& out);
 
   // The alerts not cleared, and the highest id ever given (0 for none).
-  store::Status load_live(std::vector<StoredAlert>& out, std::int64_t& max_id);
+  Status load_live(std::vector<StoredAlert>& out, std::int64_t& max_id);
 
   // Writes the alert row (inserted when `is_new`) and one alert_events row
   // for `change` with the observation behind it, in one transaction.
-  store::Status record(const StoredAlert& alert, bool is_new, std::string_view change, double t,
+  Status record(const StoredAlert& alert, bool is_new, std::string_view change, double t,
                        double wall_time, std::optional<double> event_value,
                        const nlohmann::json& event_context);
   // Writes only the progress toward the clear (no event).
-  store::Status record_good_count(std::int64_t id, std::int64_t good_count);
+  Status record_good_count(std::int64_t id, std::int64_t good_count);
 
   // Newest first, at most `limit`.
-  store::Status list(bool all, const std::optional<std::string>& subject, std::size_t limit,
+  Status list(bool all, const std::optional<std::string>& subject, std::size_t limit,
                      std::vector<Alert>& out);
   // One alert by id (found = false when there is none).
-  store::Status find(std::int64_t id, bool& found, StoredAlert& out);
+  Status find(std::int64_t id, bool& found, StoredAlert& out);
 
  private:
   store::Database db_;

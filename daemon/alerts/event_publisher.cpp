@@ -2,9 +2,9 @@
 
 namespace lphi::alerts {
 
-store::Status EventPublisher::create(zmq::context_t& context, const std::string& endpoint,
+Status EventPublisher::create(zmq::context_t& context, const std::string& endpoint,
                                      std::unique_ptr<EventPublisher>& out) {
-  if (endpoint.empty()) return store::Status::failure("the event socket has no endpoint");
+  if (endpoint.empty()) return Status::invalid_input("the event socket has no endpoint");
   try {
     // XPUB with no-drop: a send that would pass a subscriber's high-water
     // mark fails at once (non-blocking) instead of being dropped unseen, so
@@ -17,9 +17,9 @@ store::Status EventPublisher::create(zmq::context_t& context, const std::string&
     std::string bound = socket.get(zmq::sockopt::last_endpoint);
     out.reset(new EventPublisher(std::move(socket), std::move(bound)));
   } catch (const zmq::error_t& e) {
-    return store::Status::failure("cannot bind the event socket at " + endpoint + ": " + e.what());
+    return Status::unavailable("cannot bind the event socket at " + endpoint + ": " + e.what());
   }
-  return store::Status::success();
+  return Status::success();
 }
 
 EventPublisher::EventPublisher(zmq::socket_t socket, std::string endpoint)

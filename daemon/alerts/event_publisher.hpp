@@ -33,7 +33,7 @@ class EventPublisher {
 
   // Binds a PUB socket at `endpoint` (ipc://..., tcp://host:port; a tcp
   // port * picks one, see endpoint()).
-  static store::Status create(zmq::context_t& context, const std::string& endpoint,
+  static Status create(zmq::context_t& context, const std::string& endpoint,
                               std::unique_ptr<EventPublisher>& out);
 
   EventPublisher(const EventPublisher&) = delete;

@@ -89,14 +89,14 @@ int run_dephasing(const DephasingRequest& rq, std::ostream& out, std::ostream& e
 
   const std::string source = input_display_name(rq.input_path);
   std::string text;
-  if (auto s = read_text_input(rq.input_path, text); !s.ok) return fail(s.error);
+  if (auto s = read_text_input(rq.input_path, text); !s.ok()) return fail(s.message());
   CsvTable table;
-  if (auto s = CsvTable::parse(text, source, table); !s.ok) return fail(s.error);
+  if (auto s = CsvTable::parse(text, source, table); !s.ok()) return fail(s.message());
 
   std::vector<double> temperature_k, lphi_m, lphi_err_m;
-  if (auto s = table.numeric_column("temperature_k", temperature_k); !s.ok) return fail(s.error);
-  if (auto s = table.numeric_column("lphi_m", lphi_m); !s.ok) return fail(s.error);
-  if (auto s = table.numeric_column("lphi_err_m", lphi_err_m); !s.ok) return fail(s.error);
+  if (auto s = table.numeric_column("temperature_k", temperature_k); !s.ok()) return fail(s.message());
+  if (auto s = table.numeric_column("lphi_m", lphi_m); !s.ok()) return fail(s.message());
+  if (auto s = table.numeric_column("lphi_err_m", lphi_err_m); !s.ok()) return fail(s.message());
 
   dephasing::DephasingOptions options;
   options.dimension = rq.dimension;

@@ -130,9 +130,9 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
   FitOutcome o;
   o.source = input_display_name(rq.input_path);
   std::string text;
-  if (auto s = read_text_input(rq.input_path, text); !s.ok) return fail(s.error);
+  if (auto s = read_text_input(rq.input_path, text); !s.ok()) return fail(s.message());
   CsvTable table;
-  if (auto s = CsvTable::parse(text, o.source, table); !s.ok) return fail(s.error);
+  if (auto s = CsvTable::parse(text, o.source, table); !s.ok()) return fail(s.message());
   o.rows = table.row_count();
 
   if (!rq.input_column.empty()) {
@@ -167,8 +167,8 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
   }
 
   std::vector<double> field_t, signal;
-  if (auto s = table.numeric_column("field_t", field_t); !s.ok) return fail(s.error);
-  if (auto s = table.numeric_column(signal_column, signal); !s.ok) return fail(s.error);
+  if (auto s = table.numeric_column("field_t", field_t); !s.ok()) return fail(s.message());
+  if (auto s = table.numeric_column(signal_column, signal); !s.ok()) return fail(s.message());
   if (table.row_count() == 0) return fail(o.source + ": no data rows below the header");
 
   std::vector<conductance::FieldPoint> points;

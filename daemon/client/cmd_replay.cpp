@@ -183,8 +183,8 @@ int run_replay(const ReplayOptions& opt) {
   const double speed = opt.speed.value_or(1.0);
   ColumnMap map;
   for (const auto& m : opt.columns) {
-    if (auto s = add_column_mapping(m, map); !s.ok) {
-      std::cerr << "lphi: " << s.error << "\n";
+    if (auto s = add_column_mapping(m, map); !s.ok()) {
+      std::cerr << "lphi: " << s.message() << "\n";
       return exit_bad_input;
     }
   }
@@ -196,8 +196,8 @@ int run_replay(const ReplayOptions& opt) {
       std::cerr << "lphi: cannot open " << opt.path << "\n";
       return exit_bad_input;
     }
-    if (auto s = scan_recording(in, opt.path, map, summary); !s.ok) {
-      std::cerr << "lphi: " << s.error << "\n";
+    if (auto s = scan_recording(in, opt.path, map, summary); !s.ok()) {
+      std::cerr << "lphi: " << s.message() << "\n";
       return exit_bad_input;
     }
   }
@@ -269,11 +269,11 @@ int run_replay(const ReplayOptions& opt) {
   install_interrupt_handler();
   std::ifstream in(opt.path, std::ios::binary);
   RecordingReader reader;
-  CsvStatus status = in ? reader.open(in, opt.path, map) : CsvStatus::failure("cannot open " + opt.path + " again");
+  Status status = in ? reader.open(in, opt.path, map) : Status::invalid_input("cannot open " + opt.path + " again");
   std::uint64_t rows = 0;
   const auto wall_start = Clock::now();
   RecordingRow row;
-  while (status.ok && !interrupted() && reader.next(row, status)) {
+  while (status.ok() && !interrupted() && reader.next(row, status)) {
     if (!opt.fast) {
       const auto due = wall_start + std::chrono::duration_cast<Clock::duration>(
                                         std::chrono::duration<double>((row.t_s - summary.first_t_s) / speed));
@@ -301,7 +301,7 @@ int run_replay(const ReplayOptions& opt) {
     if (rows % 512 == 0) streams.pump_all(0ms);
   }
   const bool stopped = interrupted();
-  if (!status.ok) std::cerr << "lphi: " << status.error << " (the file changed while it was replayed?)\n";
+  if (!status.ok()) std::cerr << "lphi: " << status.message() << " (the file changed while it was replayed?)\n";
   if (stopped) std::cerr << "lphi: interrupted after " << rows << " rows; waiting for lphid's acknowledgements\n";
   const bool acked = wait_for_acks(streams, opt);
 
@@ -324,7 +324,7 @@ int run_replay(const ReplayOptions& opt) {
             << " thermometer, " << streams.offered[field] << " field readings; accepted " << accepted
             << ", duplicates " << duplicates << ", rejected " << rejected << "\n";
   if (!acked) return exit_unreachable;
-  if (stopped || !status.ok) return status.ok ? exit_failure : exit_bad_input;
+  if (stopped || !status.ok()) return status.ok() ? exit_failure : exit_bad_input;
 
   // 4. Until the analysis has it all.
   json progress;

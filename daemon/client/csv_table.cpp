@@ -72,7 +72,7 @@ std::optional<double> parse_number(std::string_view cell, std::string* why) {
   return value;
 }
 
-CsvStatus CsvTable::parse(std::string_view text, std::string_view source_name,
+Status CsvTable::parse(std::string_view text, std::string_view source_name,
                           CsvTable& out) {
   out = CsvTable{};
   out.source_name_ = std::string(source_name);
@@ -97,12 +97,12 @@ CsvStatus CsvTable::parse(std::string_view text, std::string_view source_name,
       std::unordered_set<std::string> seen;
       for (std::size_t i = 0; i < cells.size(); ++i) {
         if (cells[i].empty()) {
-          return CsvStatus::failure(prefix + "line " + std::to_string(line_no) +
+          return Status::invalid_input(prefix + "line " + std::to_string(line_no) +
                                     ": header column " + std::to_string(i + 1) +
                                     " has no name");
         }
         if (!seen.insert(cells[i]).second) {
-          return CsvStatus::failure(prefix + "line " + std::to_string(line_no) +
+          return Status::invalid_input(prefix + "line " + std::to_string(line_no) +
                                     ": header names column '" + cells[i] + "' twice");
         }
       }
@@ -111,7 +111,7 @@ CsvStatus CsvTable::parse(std::string_view text, std::string_view source_name,
       continue;
     }
     if (cells.size() != out.header_.size()) {
-      return CsvStatus::failure(prefix + "line " + std::to_string(line_no) + ": row has " +
+      return Status::invalid_input(prefix + "line " + std::to_string(line_no) + ": row has " +
                                 std::to_string(cells.size()) +
                                 (cells.size() == 1 ? " cell" : " cells") + ", the header has " +
                                 std::to_string(out.header_.size()) + " columns");
@@ -119,10 +119,10 @@ CsvStatus CsvTable::parse(std::string_view text, std::string_view source_name,
     out.rows_.push_back(Row{line_no, std::move(cells)});
   }
   if (!have_header) {
-    return CsvStatus::failure(out.source_name_ +
+    return Status::invalid_input(out.source_name_ +
                               ": no header row (the file is empty or holds only comments)");
   }
-  return CsvStatus::success();
+  return Status::success();
 }
 
 std::optional<std::size_t> CsvTable::column_index(std::string_view name) const {
@@ -137,42 +137,42 @@ std::string CsvTable::where(std::size_t row, std::string_view column_name) const
          std::string(column_name) + "'";
 }
 
-CsvStatus CsvTable::numeric_column(std::string_view name, std::vector<double>& out) const {
+Status CsvTable::numeric_column(std::string_view name, std::vector<double>& out) const {
   out.clear();
   const auto index = column_index(name);
   if (!index) {
     std::string have;
     for (const auto& h : header_) have += (have.empty() ? "" : ", ") + h;
-    return CsvStatus::failure(source_name_ + ": missing column '" + std::string(name) +
+    return Status::invalid_input(source_name_ + ": missing column '" + std::string(name) +
                               "' (the header has: " + have + ")");
   }
   out.reserve(rows_.size());
   for (std::size_t r = 0; r < rows_.size(); ++r) {
     std::string why;
     const auto value = parse_number(rows_[r].cells[*index], &why);
-    if (!value) return CsvStatus::failure(where(r, name) + ": " + why);
+    if (!value) return Status::invalid_input(where(r, name) + ": " + why);
     out.push_back(*value);
   }
-  return CsvStatus::success();
+  return Status::success();
 }
 
 std::string input_display_name(const std::string& path) {
   return path == "-" ? std::string("stdin") : path;
 }
 
-CsvStatus read_text_input(const std::string& path, std::string& out, std::size_t max_bytes) {
+Status read_text_input(const std::string& path, std::string& out, std::size_t max_bytes) {
   out.clear();
   std::ifstream file;
   std::istream* in = &std::cin;
   if (path != "-") {
     std::error_code dir_ec;
     if (std::filesystem::is_directory(path, dir_ec)) {
-      return CsvStatus::failure(path + ": is a directory, not a table");
+      return Status::invalid_input(path + ": is a directory, not a table");
     }
     file.open(path, std::ios::binary);
     if (!file) {
       const std::error_code ec(errno, std::generic_category());
-      return CsvStatus::failure(path + ": cannot open: " + ec.message());
+      return Status::invalid_input(path + ": cannot open: " + ec.message());
     }
     in = &file;
   }
@@ -184,15 +184,15 @@ CsvStatus read_text_input(const std::string& path, std::string& out, std::size_t
       const std::string limit = max_bytes >= (std::size_t{1} << 20)
                                     ? std::to_string(max_bytes >> 20) + " MiB"
                                     : std::to_string(max_bytes) + " bytes";
-      return CsvStatus::failure(input_display_name(path) + ": larger than " + limit +
+      return Status::invalid_input(input_display_name(path) + ": larger than " + limit +
                                 "; not a table lphi reads");
     }
     out.append(buffer, got);
   }
   if (in->bad()) {
-    return CsvStatus::failure(input_display_name(path) + ": read error");
+    return Status::invalid_input(input_display_name(path) + ": read error");
   }
-  return CsvStatus::success();
+  return Status::success();
 }
 
 }  // namespace lphi::client

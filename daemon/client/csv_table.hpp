@@ -16,7 +16,7 @@
 // message names the file's line number (1-based, counting every line, so it
 // matches what an editor shows) and the column.
 //
-// Errors are values (CsvStatus); nothing here throws for bad input.
+// Errors are values (Status); nothing here throws for bad input.
 #pragma once
 
 #include <cstddef>
@@ -25,15 +25,9 @@
 #include <string_view>
 #include <vector>
 
+#include "schema/status.hpp"
+
 namespace lphi::client {
-
-struct CsvStatus {
-  bool ok = true;
-  std::string error;  // set when !ok: one line, names the line and column
-
-  static CsvStatus success() { return {}; }
-  static CsvStatus failure(std::string message) { return {false, std::move(message)}; }
-};
 
 // Parses one cell as a finite double. On failure returns nothing and sets
 // *why to a short reason ("is empty", "is not a number", ...).
@@ -43,7 +37,7 @@ class CsvTable {
  public:
   // Parses the whole text. source_name (a file name, or "stdin") prefixes
   // every error message.
-  static CsvStatus parse(std::string_view text, std::string_view source_name,
+  static Status parse(std::string_view text, std::string_view source_name,
                          CsvTable& out);
 
   const std::vector<std::string>& header() const { return header_; }
@@ -61,7 +55,7 @@ class CsvTable {
 
   // All values of a numeric column, in row order. Fails when the column is
   // missing or a cell is not a finite number.
-  CsvStatus numeric_column(std::string_view name, std::vector<double>& out) const;
+  Status numeric_column(std::string_view name, std::vector<double>& out) const;
 
   // "<source> line <n>, column '<name>'": the prefix of a message about one cell.
   std::string where(std::size_t row, std::string_view column_name) const;
@@ -79,7 +73,7 @@ class CsvTable {
 // Reads a whole file, or standard input when path is "-". Refuses files
 // larger than max_bytes so that a wrong path (a device, a huge log) gives a
 // clear error instead of exhausting memory.
-CsvStatus read_text_input(const std::string& path, std::string& out,
+Status read_text_input(const std::string& path, std::string& out,
                           std::size_t max_bytes = std::size_t{256} << 20);
 
 // The name to use for path in messages ("stdin" for "-").

@@ -98,14 +98,14 @@ void register_export_command(CLI::App& app, int* exit_code) {
     }
     store::StoreReader reader;
     if (auto s = store::StoreReader::open(path, reader); !s) {
-      std::cerr << "lphi: " << s.message << "\n";
+      std::cerr << "lphi: " << s.message() << "\n";
       *exit_code = exit_failure;
       return;
     }
     store::SourceRow source;
     bool found = false;
     if (auto s = reader.find_source(opt->source, source, found); !s) {
-      std::cerr << "lphi: " << s.message << "\n";
+      std::cerr << "lphi: " << s.message() << "\n";
       *exit_code = exit_failure;
       return;
     }
@@ -138,7 +138,7 @@ void register_export_command(CLI::App& app, int* exit_code) {
         });
     std::cout.flush();
     if (!status) {
-      std::cerr << "lphi: " << status.message << "\n";
+      std::cerr << "lphi: " << status.message() << "\n";
       *exit_code = exit_failure;
       return;
     }

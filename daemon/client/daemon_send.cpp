@@ -84,8 +84,8 @@ bool feed_csv(Feeder& feeder, std::istream& in) {
   buffer << in.rdbuf();
   const std::string text = buffer.str();
   CsvTable table;
-  if (auto s = CsvTable::parse(text, "stdin", table); !s.ok) {
-    std::cerr << s.error << "\n";
+  if (auto s = CsvTable::parse(text, "stdin", table); !s.ok()) {
+    std::cerr << s.message() << "\n";
     return false;
   }
   for (std::size_t row = 0; row < table.row_count(); ++row) {

@@ -65,10 +65,10 @@ const std::vector<std::string>& recording_columns() {
   return names;
 }
 
-CsvStatus add_column_mapping(const std::string& mapping, ColumnMap& map) {
+Status add_column_mapping(const std::string& mapping, ColumnMap& map) {
   const auto eq = mapping.find('=');
   if (eq == std::string::npos || eq == 0 || eq + 1 == mapping.size()) {
-    return CsvStatus::failure("--column '" + mapping + "': expected COLUMN=NAME, e.g. time_s=t_sec");
+    return Status::invalid_input("--column '" + mapping + "': expected COLUMN=NAME, e.g. time_s=t_sec");
   }
   const std::string canonical = trim(mapping.substr(0, eq));
   const std::string name = trim(mapping.substr(eq + 1));
@@ -77,18 +77,18 @@ CsvStatus add_column_mapping(const std::string& mapping, ColumnMap& map) {
   if (!known) {
     std::string list;
     for (const auto& c : recording_columns()) list += (list.empty() ? "" : ", ") + c;
-    return CsvStatus::failure("--column '" + mapping + "': '" + canonical + "' is not a column of a recording (" +
+    return Status::invalid_input("--column '" + mapping + "': '" + canonical + "' is not a column of a recording (" +
                               list + ")");
   }
-  if (name.empty()) return CsvStatus::failure("--column '" + mapping + "': the file's column name is empty");
+  if (name.empty()) return Status::invalid_input("--column '" + mapping + "': the file's column name is empty");
   if (map.count(canonical) != 0) {
-    return CsvStatus::failure("--column '" + mapping + "': '" + canonical + "' is mapped twice");
+    return Status::invalid_input("--column '" + mapping + "': '" + canonical + "' is mapped twice");
   }
   map[canonical] = name;
-  return CsvStatus::success();
+  return Status::success();
 }
 
-CsvStatus RecordingReader::open(std::istream& in, std::string source_name, const ColumnMap& map) {
+Status RecordingReader::open(std::istream& in, std::string source_name, const ColumnMap& map) {
   *this = RecordingReader{};
   in_ = &in;
   source_name_ = std::move(source_name);
@@ -102,11 +102,11 @@ CsvStatus RecordingReader::open(std::istream& in, std::string source_name, const
     std::set<std::string> seen;
     for (std::size_t i = 0; i < header.size(); ++i) {
       if (header[i].empty()) {
-        return CsvStatus::failure(source_name_ + " line " + std::to_string(line_) + ": header cell " +
+        return Status::invalid_input(source_name_ + " line " + std::to_string(line_) + ": header cell " +
                                   std::to_string(i + 1) + " is empty");
       }
       if (!seen.insert(header[i]).second) {
-        return CsvStatus::failure(source_name_ + " line " + std::to_string(line_) + ": column '" + header[i] +
+        return Status::invalid_input(source_name_ + " line " + std::to_string(line_) + ": column '" + header[i] +
                                   "' appears twice in the header");
       }
     }
@@ -125,13 +125,13 @@ CsvStatus RecordingReader::open(std::istream& in, std::string source_name, const
         if (mapped != map.end()) message += " (given for " + names[c] + " by --column)";
         message += "; a recording needs time_s, temperature_k, field_t, lockin_x_v, lockin_y_v"
                    " (map other names with --column " + names[c] + "=NAME)";
-        return CsvStatus::failure(message);
+        return Status::invalid_input(message);
       }
     }
-    return CsvStatus::success();
+    return Status::success();
   }
-  if (in.bad()) return CsvStatus::failure(source_name_ + ": read error");
-  return CsvStatus::failure(source_name_ + ": no header line (the file is empty)");
+  if (in.bad()) return Status::invalid_input(source_name_ + ": read error");
+  return Status::invalid_input(source_name_ + ": no header line (the file is empty)");
 }
 
 std::string RecordingReader::where(std::size_t line, std::size_t canonical) const {
@@ -140,10 +140,10 @@ std::string RecordingReader::where(std::size_t line, std::size_t canonical) cons
   return text;
 }
 
-bool RecordingReader::next(RecordingRow& row, CsvStatus& status) {
-  status = CsvStatus::success();
+bool RecordingReader::next(RecordingRow& row, Status& status) {
+  status = Status::success();
   if (in_ == nullptr) {
-    status = CsvStatus::failure("recording not opened");
+    status = Status::invalid_input("recording not opened");
     return false;
   }
   std::string line;
@@ -152,7 +152,7 @@ bool RecordingReader::next(RecordingRow& row, CsvStatus& status) {
     if (skipped(line)) continue;
     split_cells(line, cells_);
     auto fail = [&](std::string message) {
-      status = CsvStatus::failure(std::move(message));
+      status = Status::invalid_input(std::move(message));
       return false;
     };
     if (cells_.size() != header_cells_) {
@@ -239,17 +239,17 @@ bool RecordingReader::next(RecordingRow& row, CsvStatus& status) {
     }
     return true;
   }
-  if (in_->bad()) status = CsvStatus::failure(source_name_ + ": read error after line " + std::to_string(line_));
+  if (in_->bad()) status = Status::invalid_input(source_name_ + ": read error after line " + std::to_string(line_));
   return false;
 }
 
-CsvStatus scan_recording(std::istream& in, const std::string& source_name, const ColumnMap& map,
+Status scan_recording(std::istream& in, const std::string& source_name, const ColumnMap& map,
                          RecordingSummary& out) {
   out = RecordingSummary{};
   RecordingReader reader;
-  if (auto s = reader.open(in, source_name, map); !s.ok) return s;
+  if (auto s = reader.open(in, source_name, map); !s.ok()) return s;
   RecordingRow row;
-  CsvStatus status;
+  Status status;
   while (reader.next(row, status)) {
     if (out.rows == 0) {
       out.first_t_s = row.t_s;
@@ -261,9 +261,9 @@ CsvStatus scan_recording(std::istream& in, const std::string& source_name, const
     out.thermometer_readings += row.temperature_k ? 1 : 0;
     out.field_readings += row.field_t ? 1 : 0;
   }
-  if (!status.ok) return status;
-  if (out.rows == 0) return CsvStatus::failure(source_name + ": no data rows after the header");
-  return CsvStatus::success();
+  if (!status.ok()) return status;
+  if (out.rows == 0) return Status::invalid_input(source_name + ": no data rows after the header");
+  return Status::success();
 }
 
 }  // namespace lphi::client

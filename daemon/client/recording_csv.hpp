@@ -43,7 +43,7 @@ inline constexpr std::size_t recording_required_columns = 5;
 
 // Adds "canonical=file_name" to map. Error (naming the mapping) for a
 // malformed one, an unknown canonical name, or a name mapped twice.
-CsvStatus add_column_mapping(const std::string& mapping, ColumnMap& map);
+Status add_column_mapping(const std::string& mapping, ColumnMap& map);
 
 // Unix times start here: 1e9 s is 2001-09-09, before any recording lphi reads.
 inline constexpr double unix_time_threshold_s = 1e9;
@@ -62,10 +62,10 @@ struct RecordingRow {
 class RecordingReader {
  public:
   // Reads up to and including the header. source_name prefixes messages.
-  CsvStatus open(std::istream& in, std::string source_name, const ColumnMap& map);
+  Status open(std::istream& in, std::string source_name, const ColumnMap& map);
   // The next data row: true with `row` set, false at the end (status ok) or
   // at a bad row (status not ok, naming it).
-  bool next(RecordingRow& row, CsvStatus& status);
+  bool next(RecordingRow& row, Status& status);
 
  private:
   std::string where(std::size_t line, std::size_t canonical) const;
@@ -91,7 +91,7 @@ struct RecordingSummary {
 };
 
 // Reads every row, checking it; the summary on success.
-CsvStatus scan_recording(std::istream& in, const std::string& source_name, const ColumnMap& map,
+Status scan_recording(std::istream& in, const std::string& source_name, const ColumnMap& map,
                          RecordingSummary& out);
 
 }  // namespace lphi::client

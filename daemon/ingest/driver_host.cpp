@@ -42,7 +42,7 @@ DriverHost::DriverHost() : work_(boost::asio::make_work_guard(io_)) {}
 
 DriverHost::~DriverHost() { stop(); }
 
-store::Status DriverHost::create(const config::Config& config,
+Status DriverHost::create(const config::Config& config,
                                  const std::map<std::string, store::SourceState>& sources,
                                  IngestServer& server) {
   for (const auto& src : config.sources) {
@@ -67,14 +67,14 @@ store::Status DriverHost::create(const config::Config& config,
       entry.driver = drivers::LineStreamDriver::create(io_, std::move(c), hooks_for(src.name, server), &error);
     }
     if (!entry.driver) {
-      return store::Status::failure("source " + src.name + ": cannot make its " +
+      return Status::invalid_input("source " + src.name + ": cannot make its " +
                                     std::string(config::driver_type_name(src.driver)) + " driver: " + error);
     }
     spdlog::info("source {}: {} driver for {}, first seq {}", src.name,
                  config::driver_type_name(src.driver), entry.address, first_seq);
     drivers_.push_back(std::move(entry));
   }
-  return store::Status::success();
+  return Status::success();
 }
 
 void DriverHost::start() {

@@ -39,7 +39,7 @@ class DriverHost {
   // Creates the drivers of the sources that have one. `sources` are the
   // registered sources' states (for the next seq). Fails, naming the source,
   // when a driver cannot be made (e.g. a listen address that cannot be bound).
-  store::Status create(const config::Config& config,
+  Status create(const config::Config& config,
                        const std::map<std::string, store::SourceState>& sources,
                        IngestServer& server);
   std::size_t size() const { return drivers_.size(); }

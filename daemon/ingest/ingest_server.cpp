@@ -72,7 +72,7 @@ IngestServer::~IngestServer() {
   if (wake_fd_ >= 0) ::close(wake_fd_);
 }
 
-store::Status IngestServer::create(zmq::context_t& context, const IngestOptions& options,
+Status IngestServer::create(zmq::context_t& context, const IngestOptions& options,
                                    store::StoreWriter& writer,
                                    const std::map<std::string, store::SourceState>& sources,
                                    std::unique_ptr<IngestServer>& out) {
@@ -95,7 +95,7 @@ store::Status IngestServer::create(zmq::context_t& context, const IngestOptions&
     s->inbox_[name];
   }
   s->wake_fd_ = ::eventfd(0, EFD_NONBLOCK | EFD_CLOEXEC);
-  if (s->wake_fd_ < 0) return store::Status::failure("cannot create an eventfd");
+  if (s->wake_fd_ < 0) return Status::unavailable("cannot create an eventfd");
   try {
     for (auto* socket : {&s->ingest_, &s->control_}) {
       socket->set(zmq::sockopt::linger, 0);
@@ -105,15 +105,15 @@ store::Status IngestServer::create(zmq::context_t& context, const IngestOptions&
     for (const auto& [socket, endpoint] :
          {std::pair{&s->ingest_, options.endpoints.ingest},
           std::pair{&s->control_, options.endpoints.control}}) {
-      if (auto e = config::prepare_ipc_endpoint(endpoint)) return store::Status::failure(*e);
+      if (auto e = config::prepare_ipc_endpoint(endpoint)) return Status::unavailable(*e);
       socket->bind(endpoint);
-      if (auto e = config::restrict_ipc_endpoint(endpoint)) return store::Status::failure(*e);
+      if (auto e = config::restrict_ipc_endpoint(endpoint)) return Status::unavailable(*e);
     }
   } catch (const zmq::error_t& e) {
-    return store::Status::failure(std::string("cannot bind the ingest/control sockets: ") + e.what());
+    return Status::unavailable(std::string("cannot bind the ingest/control sockets: ") + e.what());
   }
   out = std::move(s);
-  return store::Status::success();
+  return Status::success();
 }
 
 void IngestServer::run(const std::atomic<bool>& stop) {
@@ -404,7 +404,7 @@ void IngestServer::drain_completions() {
 void IngestServer::finish(Completion& c) {
   SourceRuntime& s = *c.source;
   if (!c.result.status) {
-    spdlog::error("source {}: a write failed: {}", s.name, c.result.status.message);
+    spdlog::error("source {}: a write failed: {}", s.name, c.result.status.message());
     counters_.refused_messages.add(Reason::storage_error);
     // The readings passed validation but are not stored: allow them again.
     s.validated_seq = s.durable_seq;

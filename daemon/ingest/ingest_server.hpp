@@ -67,7 +67,7 @@ struct IngestOptions {
 class IngestServer {
  public:
   // Binds both sockets. `sources` are the registered sources, by name.
-  static store::Status create(zmq::context_t& context, const IngestOptions& options,
+  static Status create(zmq::context_t& context, const IngestOptions& options,
                               store::StoreWriter& writer,
                               const std::map<std::string, store::SourceState>& sources,
                               std::unique_ptr<IngestServer>& out);

@@ -164,20 +164,20 @@ struct LiveAnalysis::Worker {
   Progress progress;
   std::thread thread;
 
-  store::Status open(const std::string& db_path);
-  store::Status load_stored(std::map<std::int64_t, FitRecord>& stored);
+  Status open(const std::string& db_path);
+  Status load_stored(std::map<std::int64_t, FitRecord>& stored);
   void run();
   bool refill(int stream);
   bool push_merged();
-  store::Status write(const PipelineOutput& out);
-  store::Status write_records(store::Database& db, const PipelineOutput& out);
+  Status write(const PipelineOutput& out);
+  Status write_records(store::Database& db, const PipelineOutput& out);
   void publish(const PipelineOutput& out);
   json sweep_json(const SweepRecord& s, std::int64_t sweep_id) const;
   json fit_json(const FitRecord& f, std::int64_t sweep_id, double t_start) const;
   void set_progress(bool busy);
 };
 
-store::Status LiveAnalysis::Worker::open(const std::string& path) {
+Status LiveAnalysis::Worker::open(const std::string& path) {
   if (auto s = store::Database::open(path, store::OpenMode::read_only, read_db); !s) return s;
   if (auto s = store::Database::open(path, store::OpenMode::writer, write_db); !s) return s;
   static const char* queries[3] = {
@@ -189,10 +189,10 @@ store::Status LiveAnalysis::Worker::open(const std::string& path) {
   for (int k = 0; k < 3; ++k) {
     if (auto s = store::Statement::prepare(read_db, queries[k], select[k]); !s) return s;
   }
-  return store::Status::success();
+  return Status::success();
 }
 
-store::Status LiveAnalysis::Worker::load_stored(std::map<std::int64_t, FitRecord>& stored) {
+Status LiveAnalysis::Worker::load_stored(std::map<std::int64_t, FitRecord>& stored) {
   store::Statement st;
   if (auto s = store::Statement::prepare(write_db, "SELECT sweep_index, id FROM sweeps WHERE sample_id = ?1", st); !s) {
     return s;
@@ -237,7 +237,7 @@ store::Status LiveAnalysis::Worker::load_stored(std::map<std::int64_t, FitRecord
     stored[f.sweep_index] = std::move(f);
   }
   if (rc != SQLITE_DONE) return write_db.error("reading the stored fits of " + config.name);
-  return store::Status::success();
+  return Status::success();
 }
 
 // Reads the next chunk of one stream after its cursor. False when nothing new.
@@ -370,7 +370,7 @@ json LiveAnalysis::Worker::fit_json(const FitRecord& f, std::int64_t sweep_id, d
 }
 
 // The records of one step, on `db` inside a transaction the caller owns.
-store::Status LiveAnalysis::Worker::write_records(store::Database& db, const PipelineOutput& out) {
+Status LiveAnalysis::Worker::write_records(store::Database& db, const PipelineOutput& out) {
   auto fail = [&](const std::string& doing) {
     auto s = db.error(doing);
     return s;
@@ -531,11 +531,11 @@ store::Status LiveAnalysis::Worker::write_records(store::Database& db, const Pip
       if (st.step() != SQLITE_DONE) return fail("storing the verdict");
     }
   }
-  return store::Status::success();
+  return Status::success();
 }
 
-store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
-  if (out.sweeps.empty() && out.fits.empty() && out.verdicts.empty()) return store::Status::success();
+Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
+  if (out.sweeps.empty() && out.fits.empty() && out.verdicts.empty()) return Status::success();
   if (writer == nullptr) {  // no store writer (a test of this class alone): our own transaction
     if (auto s = write_db.exec("BEGIN IMMEDIATE"); !s) return s;
     if (auto s = write_records(write_db, out); !s) {
@@ -546,18 +546,18 @@ store::Status LiveAnalysis::Worker::write(const PipelineOutput& out) {
       (void)write_db.exec("ROLLBACK");
       return s;
     }
-    return store::Status::success();
+    return Status::success();
   }
   // Through the store's writer thread, in order with the readings, and wait
   // until it is durable: the records must be stored before they are
   // published. The writer takes a task whenever it runs (tasks hold no
   // readings); it refuses only when it is stopping.
-  std::promise<store::Status> done;
+  std::promise<Status> done;
   auto durable = done.get_future();
   store::WriteJob job;
   job.task = [this, &out](store::Database& db) { return write_records(db, out); };
   job.on_durable = [&done](const store::WriteResult& r) { done.set_value(r.status); };
-  if (!writer->try_submit(job)) return store::Status::failure(std::string(writer_stopping));
+  if (!writer->try_submit(job)) return Status::unavailable(std::string(writer_stopping));
   return durable.get();
 }
 
@@ -652,17 +652,17 @@ void LiveAnalysis::Worker::run() {
       out.clear();
       pipeline->process(out, 1);
       if (auto s = write(out); !s) {
-        if (s.message == writer_stopping) {
+        if (s.code() == StatusCode::unavailable) {
           // lphid is shutting down (the writer stops before the analysis):
           // these records are not stored, and the next start refits them.
-          spdlog::info("sample {}: {}; the last records are left for the next start", config.name, s.message);
+          spdlog::info("sample {}: {}; the last records are left for the next start", config.name, s.message());
           break;
         }
         // Going on would lose these records for good (the next start would
         // find the sweep without its fit): stop this sample's analysis, say so.
-        spdlog::error("sample {}: {}; its analysis stops until lphid restarts", config.name, s.message);
+        spdlog::error("sample {}: {}; its analysis stops until lphid restarts", config.name, s.message());
         std::lock_guard lock(mutex);
-        progress.error = s.message;
+        progress.error = s.message();
         write_failed = true;
         break;
       }
@@ -680,7 +680,7 @@ void LiveAnalysis::Worker::run() {
 
 // ---- LiveAnalysis ------------------------------------------------------------
 
-store::Status LiveAnalysis::create(const config::Config& config, const LiveOptions& options,
+Status LiveAnalysis::create(const config::Config& config, const LiveOptions& options,
                                    alerts::AlertEngine* engine, alerts::EventPublisher* events,
                                    std::unique_ptr<LiveAnalysis>& out) {
   std::unique_ptr<LiveAnalysis> a(new LiveAnalysis());
@@ -702,13 +702,13 @@ store::Status LiveAnalysis::create(const config::Config& config, const LiveOptio
     w->lag_allowance_s = w->settings.aligner.max_hold_s -
                          std::max(w->settings.aligner.max_age_temperature_s, w->settings.aligner.max_age_field_s);
     if (auto e = validate(w->settings); !e.empty()) {
-      return store::Status::failure("sample " + sample.name + ": " + e);
+      return Status::invalid_input("sample " + sample.name + ": " + e);
     }
     if (auto s = w->open(path); !s) return s;
     store::Statement st;
     if (auto s = store::Statement::prepare(w->write_db, "SELECT id FROM samples WHERE name = ?1", st); !s) return s;
     st.bind(1, sample.name);
-    if (st.step() != SQLITE_ROW) return store::Status::failure("sample " + sample.name + " is not registered");
+    if (st.step() != SQLITE_ROW) return Status::internal("sample " + sample.name + " is not registered");
     w->sample_id = st.column_int(0);
     const std::string names[3] = {sample.lockin, sample.thermometer, sample.field};
     for (int k = 0; k < 3; ++k) {
@@ -716,7 +716,7 @@ store::Status LiveAnalysis::create(const config::Config& config, const LiveOptio
       if (auto s = store::Statement::prepare(w->write_db, "SELECT id FROM sources WHERE name = ?1", src); !s) return s;
       src.bind(1, names[k]);
       if (src.step() != SQLITE_ROW) {
-        return store::Status::failure("sample " + sample.name + ": source " + names[k] + " is not registered");
+        return Status::internal("sample " + sample.name + ": source " + names[k] + " is not registered");
       }
       w->source_id[k] = src.column_int(0);
       w->source_name[k] = names[k];
@@ -731,7 +731,7 @@ store::Status LiveAnalysis::create(const config::Config& config, const LiveOptio
     a->workers_.push_back(std::move(w));
   }
   out = std::move(a);
-  return store::Status::success();
+  return Status::success();
 }
 
 LiveAnalysis::~LiveAnalysis() { stop(); }
@@ -801,7 +801,7 @@ json LiveAnalysis::sweeps_reply(const json& request) {
           " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
           st);
       !s) {
-    return error_reply(Reason::storage_error, s.message);
+    return error_reply(Reason::storage_error, s.message());
   }
   st.bind_optional(1, sample);
   json sweeps = json::array();
@@ -826,7 +826,7 @@ json LiveAnalysis::sweeps_reply(const json& request) {
                       {"fitted", st.column_int(16) != 0},
                       {"cooldown", st.column_int(17)}});
   }
-  if (rc != SQLITE_DONE) return error_reply(Reason::storage_error, control_db_.error("listing sweeps").message);
+  if (rc != SQLITE_DONE) return error_reply(Reason::storage_error, control_db_.error("listing sweeps").message());
   return {{"type", "sweeps"}, {"sweeps", std::move(sweeps)}};
 }
 
@@ -844,7 +844,7 @@ json LiveAnalysis::fits_reply(const json& request) {
           " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
           st);
       !s) {
-    return error_reply(Reason::storage_error, s.message);
+    return error_reply(Reason::storage_error, s.message());
   }
   st.bind_optional(1, sample);
   json fits = json::array();
@@ -867,7 +867,7 @@ json LiveAnalysis::fits_reply(const json& request) {
     j["cooldown"] = st.column_int(13);
     fits.push_back(std::move(j));
   }
-  if (rc != SQLITE_DONE) return error_reply(Reason::storage_error, control_db_.error("listing fits").message);
+  if (rc != SQLITE_DONE) return error_reply(Reason::storage_error, control_db_.error("listing fits").message());
   return {{"type", "fits"}, {"fits", std::move(fits)}};
 }
 
@@ -881,7 +881,7 @@ json LiveAnalysis::verdict_reply(const json& request) {
           " WHERE sm.name = ?1 ORDER BY v.t DESC, v.sweep_index DESC LIMIT 1",
           st);
       !s) {
-    return error_reply(Reason::storage_error, s.message);
+    return error_reply(Reason::storage_error, s.message());
   }
   json verdicts = json::array();
   for (const auto& s : config_.samples) {
@@ -895,7 +895,7 @@ json LiveAnalysis::verdict_reply(const json& request) {
       // A verdict stored before cooldowns were counted has the column's.
       if (j.is_object() && !j.contains("cooldown")) j["cooldown"] = st.column_int(1);
     } else if (rc != SQLITE_DONE) {
-      return error_reply(Reason::storage_error, control_db_.error("reading the verdict").message);
+      return error_reply(Reason::storage_error, control_db_.error("reading the verdict").message());
     }
     if (!j.is_object()) j = no_data_verdict_json();
     j["sample"] = s.name;
@@ -926,10 +926,10 @@ json LiveAnalysis::progress_reply(const json& request) {
     if (auto s = store::Statement::prepare(control_db_,
                                            std::string("SELECT MAX(seq) FROM ") + tables[k] + " WHERE source_id = ?1", st);
         !s) {
-      return error_reply(Reason::storage_error, s.message);
+      return error_reply(Reason::storage_error, s.message());
     }
     st.bind(1, w->source_id[k]);
-    if (st.step() != SQLITE_ROW) return error_reply(Reason::storage_error, control_db_.error("reading progress").message);
+    if (st.step() != SQLITE_ROW) return error_reply(Reason::storage_error, control_db_.error("reading progress").message());
     json committed = nullptr;
     if (!st.column_is_null(0)) {
       const std::int64_t seq = st.column_int(0);

@@ -71,7 +71,7 @@ class LiveAnalysis {
  public:
   // Opens the connections and looks the samples and their sources up (lphid
   // has registered them). engine and events may be null (no alerts, no events).
-  static store::Status create(const config::Config& config, const LiveOptions& options,
+  static Status create(const config::Config& config, const LiveOptions& options,
                               alerts::AlertEngine* engine, alerts::EventPublisher* events,
                               std::unique_ptr<LiveAnalysis>& out);
   ~LiveAnalysis();

@@ -36,7 +36,7 @@ Status Database::open(const std::string& path, OpenMode mode, Database& out,
   const int rc = sqlite3_open_v2(path.c_str(), &db.db_, flags, nullptr);
   if (rc != SQLITE_OK) {
     std::string why = db.db_ != nullptr ? sqlite3_errmsg(db.db_) : sqlite3_errstr(rc);
-    return Status::failure("cannot open the database " + path + ": " + why);
+    return Status::storage("cannot open the database " + path + ": " + why);
   }
   sqlite3_extended_result_codes(db.db_, 1);
   sqlite3_busy_timeout(db.db_, 10000);
@@ -62,13 +62,13 @@ Status Database::exec(std::string_view sql) {
     std::string why = message != nullptr ? message : sqlite3_errstr(rc);
     sqlite3_free(message);
     std::string shown = text.size() > 80 ? text.substr(0, 80) + "..." : text;
-    return Status::failure(path_ + ": " + why + " (in: " + shown + ")");
+    return Status::storage(path_ + ": " + why + " (in: " + shown + ")");
   }
   return Status::success();
 }
 
 Status Database::error(std::string_view doing) const {
-  return Status::failure(path_ + ": " + std::string(doing) + ": " + sqlite3_errmsg(db_));
+  return Status::storage(path_ + ": " + std::string(doing) + ": " + sqlite3_errmsg(db_));
 }
 
 Statement::~Statement() {
@@ -90,7 +90,7 @@ Status Statement::prepare(const Database& db, std::string_view sql, Statement& o
   const int rc = sqlite3_prepare_v3(db.handle(), sql.data(), static_cast<int>(sql.size()),
                                     SQLITE_PREPARE_PERSISTENT, &s.stmt_, nullptr);
   if (rc != SQLITE_OK) {
-    return Status::failure(db.path() + ": cannot prepare \"" + std::string(sql) +
+    return Status::storage(db.path() + ": cannot prepare \"" + std::string(sql) +
                            "\": " + sqlite3_errmsg(db.handle()));
   }
   out = std::move(s);

@@ -11,16 +11,9 @@
 #include <string>
 #include <string_view>
 
+#include "schema/status.hpp"
+
 namespace lphi::store {
-
-struct Status {
-  bool ok = true;
-  std::string message;  // set when !ok
-
-  static Status success() { return {}; }
-  static Status failure(std::string why) { return {false, std::move(why)}; }
-  explicit operator bool() const { return ok; }
-};
 
 enum class OpenMode {
   writer,     // read-write, created if missing, WAL; only the store writer uses this

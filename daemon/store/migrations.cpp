@@ -29,7 +29,7 @@ Status apply_migrations(Database& db, std::span<const Migration> migrations, int
   if (applied != nullptr) *applied = 0;
   for (std::size_t i = 0; i < migrations.size(); ++i) {
     if (migrations[i].version != static_cast<int>(i) + 1) {
-      return Status::failure("schema migrations must be numbered 1, 2, 3, ... without holes; " +
+      return Status::internal("schema migrations must be numbered 1, 2, 3, ... without holes; " +
                              std::string(migrations[i].name) + " is out of place");
     }
   }
@@ -44,7 +44,7 @@ Status apply_migrations(Database& db, std::span<const Migration> migrations, int
   if (auto s = read_schema_version(db, version); !s) return fail(s);
   const int latest = latest_version(migrations);
   if (version > latest) {
-    return fail(Status::failure(
+    return fail(Status::conflict(
         "the database " + db.path() + " has schema version " + std::to_string(version) +
         ", newer than this lphid understands (" + std::to_string(latest) +
         "); run a newer lphid, or restore a backup made for this version"));
@@ -60,7 +60,7 @@ Status apply_migrations(Database& db, std::span<const Migration> migrations, int
   for (const auto& m : migrations) {
     if (m.version <= version) continue;
     if (auto s = db.exec(m.sql); !s) {
-      return fail(Status::failure("schema migration " + std::string(m.name) + " failed: " + s.message));
+      return fail(Status::storage("schema migration " + std::string(m.name) + " failed: " + s.message()));
     }
     Statement record;
     if (auto s = Statement::prepare(db, "INSERT INTO schema_version (version, name) VALUES (?, ?)",

@@ -26,7 +26,7 @@ Status StoreReader::sources(std::vector<SourceRow>& out) {
   int rc = 0;
   while ((rc = s.step()) == SQLITE_ROW) {
     auto kind = protocol::parse_kind(s.column_text(2));
-    if (!kind) return Status::failure(db_.path() + ": source with an unknown kind");
+    if (!kind) return Status::storage(db_.path() + ": source with an unknown kind");
     out.push_back({s.column_int(0), s.column_text(1), *kind});
   }
   if (rc != SQLITE_DONE) return db_.error("listing sources");
@@ -44,7 +44,7 @@ Status StoreReader::find_source(const std::string& name, SourceRow& out, bool& f
   if (rc == SQLITE_DONE) return Status::success();
   if (rc != SQLITE_ROW) return db_.error("looking up source " + name);
   auto kind = protocol::parse_kind(s.column_text(2));
-  if (!kind) return Status::failure(db_.path() + ": source " + name + " has an unknown kind");
+  if (!kind) return Status::storage(db_.path() + ": source " + name + " has an unknown kind");
   out = {s.column_int(0), s.column_text(1), *kind};
   found = true;
   return Status::success();

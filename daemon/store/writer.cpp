@@ -93,7 +93,7 @@ Status StoreWriter::register_source(const std::string& name, SourceKind kind, So
     state.id = find.column_int(0);
     const std::string stored = find.column_text(1);
     if (stored != protocol::kind_name(kind)) {
-      return Status::failure("source \"" + name + "\" is stored as a " + stored +
+      return Status::conflict("source \"" + name + "\" is stored as a " + stored +
                              " but configured as a " + std::string(protocol::kind_name(kind)) +
                              "; give the new instrument a new name");
     }
@@ -251,11 +251,11 @@ Status StoreWriter::write(const WriteJob& job, WriteResult& result) {
   }
   auto found = sources_.find(job.source_id);
   if (found == sources_.end()) {
-    return Status::failure("source id " + std::to_string(job.source_id) + " is not registered");
+    return Status::internal("source id " + std::to_string(job.source_id) + " is not registered");
   }
   Source& source = found->second;
   if (protocol::kind_of(job.readings) != source.kind) {
-    return Status::failure("readings of the wrong kind for source id " +
+    return Status::internal("readings of the wrong kind for source id " +
                            std::to_string(job.source_id));
   }
   if (job.identity) {

@@ -415,7 +415,7 @@ TEST_F(Engine, RestartKeepsStateAndContinuesIds) {
     s.temperature_unstable = true;
     e->on_sweep(s);
     acked = find_rule(e->list(false), "fit-failed")->id;
-    ASSERT_TRUE(e->acknowledge(acked, 150.0).ok);
+    ASSERT_TRUE(e->acknowledge(acked, 150.0).ok());
     e->on_sweep(good_sweep(2, 200.0));  // one of two good sweeps before the restart
   }
   auto e = make_engine(db);
@@ -577,8 +577,8 @@ TEST_F(Engine, EventsStoreBothTimes) {
 TEST_F(Engine, UnopenableDatabaseIsAnError) {
   std::unique_ptr<AlertEngine> e;
   const auto s = AlertEngine::create({}, dir.file("no/such/dir/lphi.db"), nullptr, e);
-  EXPECT_FALSE(s.ok);
-  EXPECT_NE(s.message.find("no/such/dir"), std::string::npos) << s.message;
+  EXPECT_FALSE(s.ok());
+  EXPECT_NE(s.message().find("no/such/dir"), std::string::npos) << s.message();
   EXPECT_EQ(e, nullptr);
 }
 

@@ -32,8 +32,8 @@ std::optional<Message> receive(zmq::socket_t& sub, int timeout_ms) {
 class Events : public ::testing::Test {
  protected:
   void SetUp() override {
-    const store::Status s = EventPublisher::create(context, "ipc://" + dir.file("events.sock"), publisher);
-    ASSERT_TRUE(s.ok) << s.message;
+    const Status s = EventPublisher::create(context, "ipc://" + dir.file("events.sock"), publisher);
+    ASSERT_TRUE(s.ok()) << s.message();
     sub.set(zmq::sockopt::subscribe, "");
     sub.connect(publisher->endpoint());
     // A subscription takes a moment to reach the publisher (ZeroMQ's "slow
@@ -102,10 +102,10 @@ TEST_F(Events, EngineChangesArePublished) {
 TEST(EventPublisher, BadEndpointIsAnError) {
   zmq::context_t context;
   std::unique_ptr<EventPublisher> p;
-  const store::Status s = EventPublisher::create(context, "carrier-pigeon://loft", p);
-  EXPECT_FALSE(s.ok);
-  EXPECT_NE(s.message.find("carrier-pigeon://loft"), std::string::npos) << s.message;
-  EXPECT_FALSE(EventPublisher::create(context, "", p).ok);
+  const Status s = EventPublisher::create(context, "carrier-pigeon://loft", p);
+  EXPECT_FALSE(s.ok());
+  EXPECT_NE(s.message().find("carrier-pigeon://loft"), std::string::npos) << s.message();
+  EXPECT_FALSE(EventPublisher::create(context, "", p).ok());
 }
 
 // Nobody listening: publishing goes nowhere and returns at once.
@@ -113,7 +113,7 @@ TEST(EventPublisher, NoSubscriberIsFine) {
   lphi::testing::TempDir dir;
   zmq::context_t context;
   std::unique_ptr<EventPublisher> p;
-  ASSERT_TRUE(EventPublisher::create(context, "ipc://" + dir.file("e.sock"), p).ok);
+  ASSERT_TRUE(EventPublisher::create(context, "ipc://" + dir.file("e.sock"), p).ok());
   for (int i = 0; i < 20000; ++i) p->publish("sweep", {{"i", i}});
   EXPECT_EQ(p->published(), 20000u);
   EXPECT_EQ(p->dropped(), 0u);

@@ -18,8 +18,8 @@ namespace lphi::alerts::testing {
 inline std::unique_ptr<AlertEngine> make_engine(const std::string& db_path, const AlertConfig& config = {},
                                                 EventPublisher* events = nullptr) {
   std::unique_ptr<AlertEngine> engine;
-  const store::Status s = AlertEngine::create(config, db_path, events, engine);
-  EXPECT_TRUE(s.ok) << s.message;
+  const Status s = AlertEngine::create(config, db_path, events, engine);
+  EXPECT_TRUE(s.ok()) << s.message();
   return engine;
 }
 

@@ -24,24 +24,24 @@ using ::testing::HasSubstr;
 
 CsvTable parse_ok(std::string_view text) {
   CsvTable table;
-  const CsvStatus s = CsvTable::parse(text, "t.csv", table);
-  EXPECT_TRUE(s.ok) << s.error;
+  const Status s = CsvTable::parse(text, "t.csv", table);
+  EXPECT_TRUE(s.ok()) << s.message();
   return table;
 }
 
 std::string parse_error(std::string_view text) {
   CsvTable table;
-  const CsvStatus s = CsvTable::parse(text, "t.csv", table);
-  EXPECT_FALSE(s.ok);
-  return s.error;
+  const Status s = CsvTable::parse(text, "t.csv", table);
+  EXPECT_FALSE(s.ok());
+  return s.message();
 }
 
 std::string column_error(std::string_view text, std::string_view column) {
   const CsvTable table = parse_ok(text);
   std::vector<double> values;
-  const CsvStatus s = table.numeric_column(column, values);
-  EXPECT_FALSE(s.ok);
-  return s.error;
+  const Status s = table.numeric_column(column, values);
+  EXPECT_FALSE(s.ok());
+  return s.message();
 }
 
 TEST(CsvTable, ReadsHeaderAndRowsByName) {
@@ -49,8 +49,8 @@ TEST(CsvTable, ReadsHeaderAndRowsByName) {
   ASSERT_EQ(t.header().size(), 2u);
   ASSERT_EQ(t.row_count(), 3u);
   std::vector<double> b, r;
-  ASSERT_TRUE(t.numeric_column("field_t", b).ok);
-  ASSERT_TRUE(t.numeric_column("rsq_ohm", r).ok);
+  ASSERT_TRUE(t.numeric_column("field_t", b).ok());
+  ASSERT_TRUE(t.numeric_column("rsq_ohm", r).ok());
   EXPECT_EQ(b, (std::vector<double>{-0.01, 0.0, 0.01}));
   EXPECT_EQ(r, (std::vector<double>{1000.5, 1000.0, 1000.5}));
   // Data row 0 is the file's line 2 (line 1 is the header).
@@ -61,7 +61,7 @@ TEST(CsvTable, ReadsHeaderAndRowsByName) {
 TEST(CsvTable, ColumnOrderDoesNotMatterAndExtraColumnsAreIgnored) {
   const CsvTable t = parse_ok("note,rsq_ohm,field_t\nwarm,1,2\ncold,3,4\n");
   std::vector<double> b;
-  ASSERT_TRUE(t.numeric_column("field_t", b).ok);
+  ASSERT_TRUE(t.numeric_column("field_t", b).ok());
   EXPECT_EQ(b, (std::vector<double>{2.0, 4.0}));
   EXPECT_EQ(t.column_index("rsq_ohm"), 1u);
   EXPECT_FALSE(t.column_index("lockin_x_v").has_value());
@@ -83,8 +83,8 @@ TEST(CsvTable, TrimsWhitespaceToleratesCrlfSkipsBlankAndCommentLines) {
   EXPECT_EQ(t.line_number(0), 5u);
   EXPECT_EQ(t.line_number(1), 7u);
   std::vector<double> b, r;
-  ASSERT_TRUE(t.numeric_column("field_t", b).ok);
-  ASSERT_TRUE(t.numeric_column("rsq_ohm", r).ok);
+  ASSERT_TRUE(t.numeric_column("field_t", b).ok());
+  ASSERT_TRUE(t.numeric_column("rsq_ohm", r).ok());
   EXPECT_EQ(b, (std::vector<double>{1.5, -3e-3}));
   EXPECT_EQ(r, (std::vector<double>{2.5, 4.0}));
 }
@@ -128,7 +128,7 @@ TEST(CsvTable, NonNumericCellNamesLineAndColumn) {
   EXPECT_THAT(e, HasSubstr("'1.5x' is not a number"));
   // The other column of the same table is fine.
   std::vector<double> b;
-  EXPECT_TRUE(parse_ok(text).numeric_column("field_t", b).ok);
+  EXPECT_TRUE(parse_ok(text).numeric_column("field_t", b).ok());
 }
 
 TEST(CsvTable, EmptyNanAndInfCellsAreErrors) {
@@ -169,25 +169,25 @@ TEST(ReadTextInput, MissingFileAndDirectoryAreNamed) {
   lphi::testing::TempDir dir;
   std::string text;
   const std::string missing = (dir.path() / "no-such.csv").string();
-  const CsvStatus s = read_text_input(missing, text);
-  EXPECT_FALSE(s.ok);
-  EXPECT_THAT(s.error, HasSubstr(missing));
-  EXPECT_THAT(s.error, HasSubstr("No such file"));
+  const Status s = read_text_input(missing, text);
+  EXPECT_FALSE(s.ok());
+  EXPECT_THAT(s.message(), HasSubstr(missing));
+  EXPECT_THAT(s.message(), HasSubstr("No such file"));
 
-  const CsvStatus d = read_text_input(dir.path().string(), text);
-  EXPECT_FALSE(d.ok);
-  EXPECT_THAT(d.error, HasSubstr("is a directory"));
+  const Status d = read_text_input(dir.path().string(), text);
+  EXPECT_FALSE(d.ok());
+  EXPECT_THAT(d.message(), HasSubstr("is a directory"));
 }
 
 TEST(ReadTextInput, ReadsFileAndRefusesOversizedInput) {
   lphi::testing::TempDir dir;
   const std::string file = dir.write("t.csv", "a,b\n1,2\n");
   std::string text;
-  ASSERT_TRUE(read_text_input(file, text).ok);
+  ASSERT_TRUE(read_text_input(file, text).ok());
   EXPECT_EQ(text, "a,b\n1,2\n");
-  const CsvStatus big = read_text_input(file, text, 4);
-  EXPECT_FALSE(big.ok);
-  EXPECT_THAT(big.error, HasSubstr("larger than"));
+  const Status big = read_text_input(file, text, 4);
+  EXPECT_FALSE(big.ok());
+  EXPECT_THAT(big.message(), HasSubstr("larger than"));
 }
 
 }  // namespace

@@ -13,7 +13,7 @@ namespace {
 
 using lphi::client::add_column_mapping;
 using lphi::client::ColumnMap;
-using lphi::client::CsvStatus;
+using lphi::Status;
 using lphi::client::RecordingReader;
 using lphi::client::RecordingRow;
 using lphi::client::RecordingSummary;
@@ -22,7 +22,7 @@ using ::testing::HasSubstr;
 
 const char* header = "time_s,temperature_k,field_t,lockin_x_v,lockin_y_v\n";
 
-CsvStatus scan(const std::string& text, RecordingSummary& summary, const ColumnMap& map = {}) {
+Status scan(const std::string& text, RecordingSummary& summary, const ColumnMap& map = {}) {
   std::istringstream in(text);
   return scan_recording(in, "rec.csv", map, summary);
 }
@@ -30,7 +30,7 @@ CsvStatus scan(const std::string& text, RecordingSummary& summary, const ColumnM
 std::string scan_error(const std::string& text, const ColumnMap& map = {}) {
   RecordingSummary summary;
   const auto s = scan(text, summary, map);
-  return s.ok ? std::string("(no error)") : s.error;
+  return s.ok() ? std::string("(no error)") : s.message();
 }
 
 TEST(RecordingCsv, ReadsRowsWithEmptyCellsAsAbsentReadings) {
@@ -43,9 +43,9 @@ TEST(RecordingCsv, ReadsRowsWithEmptyCellsAsAbsentReadings) {
                            "0.2,0.5,,,,,,,\n";
   std::istringstream in(text);
   RecordingReader reader;
-  ASSERT_TRUE(reader.open(in, "rec.csv", {}).ok);
+  ASSERT_TRUE(reader.open(in, "rec.csv", {}).ok());
   RecordingRow row;
-  CsvStatus status;
+  Status status;
   ASSERT_TRUE(reader.next(row, status));
   EXPECT_EQ(row.line, 3u);
   EXPECT_DOUBLE_EQ(row.t_s, 0.0);
@@ -71,12 +71,12 @@ TEST(RecordingCsv, ReadsRowsWithEmptyCellsAsAbsentReadings) {
   EXPECT_FALSE(row.field_t.has_value());
   EXPECT_FALSE(row.has_lockin);
   EXPECT_FALSE(reader.next(row, status));
-  EXPECT_TRUE(status.ok) << status.error;
+  EXPECT_TRUE(status.ok()) << status.message();
 }
 
 TEST(RecordingCsv, SummaryCountsReadingsAndTellsUnixFromRelativeTimes) {
   RecordingSummary s;
-  ASSERT_TRUE(scan(std::string(header) + "10,0.5,0,1,0\n11,,0.01,1,0\n12,0.5,0.02,,\n", s).ok);
+  ASSERT_TRUE(scan(std::string(header) + "10,0.5,0,1,0\n11,,0.01,1,0\n12,0.5,0.02,,\n", s).ok());
   EXPECT_EQ(s.rows, 3u);
   EXPECT_EQ(s.lockin_readings, 2u);
   EXPECT_EQ(s.thermometer_readings, 2u);
@@ -85,7 +85,7 @@ TEST(RecordingCsv, SummaryCountsReadingsAndTellsUnixFromRelativeTimes) {
   EXPECT_DOUBLE_EQ(s.last_t_s, 12.0);
   EXPECT_FALSE(s.unix_times);
 
-  ASSERT_TRUE(scan(std::string(header) + "1700000000,0.5,0,1,0\n1700000000.1,0.5,0,1,0\n", s).ok);
+  ASSERT_TRUE(scan(std::string(header) + "1700000000,0.5,0,1,0\n1700000000.1,0.5,0,1,0\n", s).ok());
   EXPECT_TRUE(s.unix_times);
 }
 
@@ -122,11 +122,11 @@ TEST(RecordingCsv, RefusesFilesWithoutTheColumnsOrRows) {
 
 TEST(RecordingCsv, ColumnMappingRenamesAndIsNamedInErrors) {
   ColumnMap map;
-  ASSERT_TRUE(add_column_mapping("time_s=t_sec", map).ok);
-  ASSERT_TRUE(add_column_mapping("lockin_x_v = X", map).ok);
+  ASSERT_TRUE(add_column_mapping("time_s=t_sec", map).ok());
+  ASSERT_TRUE(add_column_mapping("lockin_x_v = X", map).ok());
   RecordingSummary s;
   const std::string text = "t_sec,temperature_k,field_t,X,lockin_y_v\n0,0.5,0,1,0\n2,0.5,0,1,0\n";
-  ASSERT_TRUE(scan(text, s, map).ok);
+  ASSERT_TRUE(scan(text, s, map).ok());
   EXPECT_EQ(s.rows, 2u);
   EXPECT_DOUBLE_EQ(s.last_t_s, 2.0);
   EXPECT_THAT(scan_error("t_sec,temperature_k,field_t,X,lockin_y_v\n0,0.5,0,oops,0\n", map),
@@ -135,10 +135,10 @@ TEST(RecordingCsv, ColumnMappingRenamesAndIsNamedInErrors) {
   EXPECT_THAT(scan_error(std::string(header) + "0,0.5,0,1,0\n", map),
               HasSubstr("no column 't_sec' (given for time_s by --column)"));
 
-  EXPECT_THAT(add_column_mapping("time_s", map).error, HasSubstr("expected COLUMN=NAME"));
-  EXPECT_THAT(add_column_mapping("=x", map).error, HasSubstr("expected COLUMN=NAME"));
-  EXPECT_THAT(add_column_mapping("voltage=v", map).error, HasSubstr("'voltage' is not a column of a recording"));
-  EXPECT_THAT(add_column_mapping("time_s=other", map).error, HasSubstr("mapped twice"));
+  EXPECT_THAT(add_column_mapping("time_s", map).message(), HasSubstr("expected COLUMN=NAME"));
+  EXPECT_THAT(add_column_mapping("=x", map).message(), HasSubstr("expected COLUMN=NAME"));
+  EXPECT_THAT(add_column_mapping("voltage=v", map).message(), HasSubstr("'voltage' is not a column of a recording"));
+  EXPECT_THAT(add_column_mapping("time_s=other", map).message(), HasSubstr("mapped twice"));
 }
 
 }  // namespace

@@ -22,7 +22,7 @@ using Clock = std::chrono::steady_clock;
 
 std::int64_t query_int(store::Database& db, const std::string& sql) {
   store::Statement s;
-  EXPECT_TRUE(store::Statement::prepare(db, sql, s).ok) << sql;
+  EXPECT_TRUE(store::Statement::prepare(db, sql, s).ok()) << sql;
   EXPECT_EQ(s.step(), SQLITE_ROW) << sql;
   return s.column_int(0);
 }
@@ -46,15 +46,15 @@ bool eventually(F done) {
 TEST(DriverInbox, RefusesWhileTheWriterIsFullAndStoresEverythingOnceItHasRoom) {
   testing::TempDir dir;
   std::unique_ptr<store::StoreWriter> writer;
-  ASSERT_TRUE(store::StoreWriter::open(store::database_path(dir.path()), {}, writer).ok);
+  ASSERT_TRUE(store::StoreWriter::open(store::database_path(dir.path()), {}, writer).ok());
   store::SourceState mxc;
-  ASSERT_TRUE(writer->register_source("mxc", protocol::SourceKind::thermometer, mxc).ok);
+  ASSERT_TRUE(writer->register_source("mxc", protocol::SourceKind::thermometer, mxc).ok());
   IngestOptions options;
   options.endpoints = config::daemon_endpoints(dir.path(), "", "");
   options.data_dir = dir.path();
   zmq::context_t context(1);
   std::unique_ptr<IngestServer> server;
-  ASSERT_TRUE(IngestServer::create(context, options, *writer, {{"mxc", mxc}}, server).ok);
+  ASSERT_TRUE(IngestServer::create(context, options, *writer, {{"mxc", mxc}}, server).ok());
   std::atomic<bool> stop{false};
   std::thread serving([&] { server->run(stop); });
 
@@ -85,7 +85,7 @@ TEST(DriverInbox, RefusesWhileTheWriterIsFullAndStoresEverythingOnceItHasRoom) {
   serving.join();  // run() stops the writer after writing what is queued
 
   store::Database db;
-  ASSERT_TRUE(store::Database::open(store::database_path(dir.path()), store::OpenMode::read_only, db).ok);
+  ASSERT_TRUE(store::Database::open(store::database_path(dir.path()), store::OpenMode::read_only, db).ok());
   // Every handed-over reading is stored, seq 0..5*taken-1, without gaps.
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM thermometer_readings"), 5 * taken);
   EXPECT_EQ(query_int(db, "SELECT max(seq) FROM thermometer_readings"), 5 * taken - 1);
@@ -98,16 +98,16 @@ TEST(DriverInbox, DriverReadingsPassTheSameChecksAsBatches) {
   // driver's reading out of range is refused like a sender's, and counted.
   testing::TempDir dir;
   std::unique_ptr<store::StoreWriter> writer;
-  ASSERT_TRUE(store::StoreWriter::open(store::database_path(dir.path()), {}, writer).ok);
+  ASSERT_TRUE(store::StoreWriter::open(store::database_path(dir.path()), {}, writer).ok());
   store::SourceState mxc;
-  ASSERT_TRUE(writer->register_source("mxc", protocol::SourceKind::thermometer, mxc).ok);
+  ASSERT_TRUE(writer->register_source("mxc", protocol::SourceKind::thermometer, mxc).ok());
   writer->start();
   IngestOptions options;
   options.endpoints = config::daemon_endpoints(dir.path(), "", "");
   options.data_dir = dir.path();
   zmq::context_t context(1);
   std::unique_ptr<IngestServer> server;
-  ASSERT_TRUE(IngestServer::create(context, options, *writer, {{"mxc", mxc}}, server).ok);
+  ASSERT_TRUE(IngestServer::create(context, options, *writer, {{"mxc", mxc}}, server).ok());
   std::atomic<bool> stop{false};
   std::thread serving([&] { server->run(stop); });
   const double now = std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
@@ -118,7 +118,7 @@ TEST(DriverInbox, DriverReadingsPassTheSameChecksAsBatches) {
   stop = true;
   serving.join();
   store::Database db;
-  ASSERT_TRUE(store::Database::open(store::database_path(dir.path()), store::OpenMode::read_only, db).ok);
+  ASSERT_TRUE(store::Database::open(store::database_path(dir.path()), store::OpenMode::read_only, db).ok());
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM thermometer_readings"), 2);
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM thermometer_readings WHERE seq IN (1, 3)"), 0)
       << "negative temperature and a time 1e6 s ahead (default tolerance 86400 s) are refused";

@@ -112,21 +112,21 @@ TEST(Crash, SigkillTwentyTimesLosesNothingAcknowledgedAndStoresNothingTwice) {
   for (std::int64_t s = 1; s <= total; ++s) ASSERT_GE(acked_times[static_cast<std::size_t>(s)], 1) << "seq " << s;
 
   store::StoreReader reader;
-  ASSERT_TRUE(store::StoreReader::open(store::database_path(dir.path()), reader).ok);
+  ASSERT_TRUE(store::StoreReader::open(store::database_path(dir.path()), reader).ok());
   std::string integrity;
-  ASSERT_TRUE(reader.integrity_check(integrity).ok);
+  ASSERT_TRUE(reader.integrity_check(integrity).ok());
   EXPECT_EQ(integrity, "ok");  // SQLite's verdict on the file after 20 kills
 
   store::SourceRow source;
   bool found = false;
-  ASSERT_TRUE(reader.find_source("lockin-a", source, found).ok);
+  ASSERT_TRUE(reader.find_source("lockin-a", source, found).ok());
   ASSERT_TRUE(found);
   // Exactly once: as many rows as readings, each seq once, each value exact.
   std::int64_t rows = 0, distinct = 0;
   {
     store::Statement s;
     ASSERT_TRUE(store::Statement::prepare(reader.database(),
-                                          "SELECT count(*), count(DISTINCT seq) FROM lockin_readings", s).ok);
+                                          "SELECT count(*), count(DISTINCT seq) FROM lockin_readings", s).ok());
     ASSERT_EQ(s.step(), SQLITE_ROW);
     rows = s.column_int(0);
     distinct = s.column_int(1);
@@ -143,7 +143,7 @@ TEST(Crash, SigkillTwentyTimesLosesNothingAcknowledgedAndStoresNothingTwice) {
                               }
                               return true;
                             })
-                  .ok);
+                  .ok());
   EXPECT_EQ(expected_seq, total + 1);
 }
 

@@ -198,13 +198,13 @@ TEST(HostileInput, EveryKindIsRefusedWithItsReasonCountedAndStoresNothing) {
 
   // And nothing reached the database.
   store::StoreReader reader;
-  ASSERT_TRUE(store::StoreReader::open(store::database_path(dir.path()), reader).ok);
+  ASSERT_TRUE(store::StoreReader::open(store::database_path(dir.path()), reader).ok());
   std::vector<store::SourceRow> sources;
-  ASSERT_TRUE(reader.sources(sources).ok);
+  ASSERT_TRUE(reader.sources(sources).ok());
   ASSERT_EQ(sources.size(), 3u);
   for (const auto& s : sources) {
     std::int64_t count = -1;
-    ASSERT_TRUE(reader.reading_count(s, count).ok);
+    ASSERT_TRUE(reader.reading_count(s, count).ok());
     EXPECT_EQ(count, 0) << s.name;
   }
 }

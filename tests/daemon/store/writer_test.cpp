@@ -58,14 +58,14 @@ struct Fixture {
   std::unique_ptr<StoreWriter> writer;
   SourceState lockin, thermo;
   explicit Fixture(WriterOptions options = {}) {
-    EXPECT_TRUE(StoreWriter::open(dir.file("lphi.db"), options, writer).ok);
-    EXPECT_TRUE(writer->register_source("lockin-a", SourceKind::lockin, lockin).ok);
-    EXPECT_TRUE(writer->register_source("mxc", SourceKind::thermometer, thermo).ok);
+    EXPECT_TRUE(StoreWriter::open(dir.file("lphi.db"), options, writer).ok());
+    EXPECT_TRUE(writer->register_source("lockin-a", SourceKind::lockin, lockin).ok());
+    EXPECT_TRUE(writer->register_source("mxc", SourceKind::thermometer, thermo).ok());
     writer->start();
   }
   std::vector<LockinReading> stored_lockin() {
     StoreReader reader;
-    EXPECT_TRUE(StoreReader::open(dir.file("lphi.db"), reader).ok);
+    EXPECT_TRUE(StoreReader::open(dir.file("lphi.db"), reader).ok());
     std::vector<LockinReading> out;
     SourceRow row{lockin.id, "lockin-a", SourceKind::lockin};
     EXPECT_TRUE(reader
@@ -75,7 +75,7 @@ struct Fixture {
                                 out.insert(out.end(), v.begin(), v.end());
                                 return true;
                               })
-                    .ok);
+                    .ok());
     return out;
   }
 };
@@ -83,7 +83,7 @@ struct Fixture {
 TEST(StoreWriter, AcknowledgesOnlyWhatAnotherConnectionCanAlreadyRead) {
   Fixture f;
   StoreReader reader;
-  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok);
+  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok());
   const SourceRow row{f.lockin.id, "lockin-a", SourceKind::lockin};
   std::atomic<int> checked{0}, visible{0};
   Results results;
@@ -113,7 +113,7 @@ TEST(StoreWriter, AcknowledgesOnlyWhatAnotherConnectionCanAlreadyRead) {
   EXPECT_EQ(checked.load(), 20);
   EXPECT_EQ(visible.load(), 20);
   for (const auto& r : results.done) {
-    EXPECT_TRUE(r.status.ok) << r.status.message;
+    EXPECT_TRUE(r.status.ok()) << r.status.message();
     EXPECT_EQ(r.accepted, 100u);
     EXPECT_EQ(r.duplicates, 0u);
   }
@@ -160,9 +160,9 @@ TEST(StoreWriter, GapsAreRecorded) {
   ASSERT_TRUE(f.writer->try_submit(b));
   ASSERT_TRUE(results.wait_for(2));
   StoreReader reader;
-  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok);
+  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok());
   std::vector<GapRow> gaps;
-  ASSERT_TRUE(reader.gaps({f.lockin.id, "lockin-a", SourceKind::lockin}, gaps).ok);
+  ASSERT_TRUE(reader.gaps({f.lockin.id, "lockin-a", SourceKind::lockin}, gaps).ok());
   ASSERT_EQ(gaps.size(), 1u);
   EXPECT_EQ(gaps[0].first_seq, 11);
   EXPECT_EQ(gaps[0].last_seq, 19);
@@ -179,10 +179,10 @@ TEST(StoreWriter, GapsAreRecorded) {
 struct WriteLockHolder {
   Database db;
   explicit WriteLockHolder(const std::string& path) {
-    EXPECT_TRUE(Database::open(path, OpenMode::writer, db).ok);
-    EXPECT_TRUE(db.exec("BEGIN IMMEDIATE").ok);
+    EXPECT_TRUE(Database::open(path, OpenMode::writer, db).ok());
+    EXPECT_TRUE(db.exec("BEGIN IMMEDIATE").ok());
   }
-  void release() { EXPECT_TRUE(db.exec("COMMIT").ok); }
+  void release() { EXPECT_TRUE(db.exec("COMMIT").ok()); }
 };
 
 TEST(StoreWriter, FullQueueRefusesInsteadOfGrowingAndGroupCommitHonoursTheLimit) {
@@ -211,7 +211,7 @@ TEST(StoreWriter, FullQueueRefusesInsteadOfGrowingAndGroupCommitHonoursTheLimit)
   EXPECT_LE(f.writer->stats().queued_readings, 200u);
   lock.release();
   ASSERT_TRUE(results.wait_for(submitted));
-  for (const auto& r : results.done) EXPECT_TRUE(r.status.ok) << r.status.message;
+  for (const auto& r : results.done) EXPECT_TRUE(r.status.ok()) << r.status.message();
   EXPECT_EQ(f.stored_lockin().size(), submitted * 10);
   // 200 readings with at most 50 per transaction: at least 4 commits; jobs
   // were grouped, so fewer commits than jobs.
@@ -226,9 +226,9 @@ TEST(StoreWriter, StopWritesWhatIsQueued) {
   lphi::testing::TempDir dir;
   {
     std::unique_ptr<StoreWriter> writer;
-    ASSERT_TRUE(StoreWriter::open(dir.file("lphi.db"), {}, writer).ok);
+    ASSERT_TRUE(StoreWriter::open(dir.file("lphi.db"), {}, writer).ok());
     SourceState thermo;
-    ASSERT_TRUE(writer->register_source("mxc", SourceKind::thermometer, thermo).ok);
+    ASSERT_TRUE(writer->register_source("mxc", SourceKind::thermometer, thermo).ok());
     writer->start();
     for (int b = 0; b < 10; ++b) {
       std::vector<ThermometerReading> v;
@@ -241,36 +241,36 @@ TEST(StoreWriter, StopWritesWhatIsQueued) {
   }
   // Reopening finds everything, the source's highest seq and a sound file.
   std::unique_ptr<StoreWriter> writer;
-  ASSERT_TRUE(StoreWriter::open(dir.file("lphi.db"), {}, writer).ok);
+  ASSERT_TRUE(StoreWriter::open(dir.file("lphi.db"), {}, writer).ok());
   SourceState thermo;
-  ASSERT_TRUE(writer->register_source("mxc", SourceKind::thermometer, thermo).ok);
+  ASSERT_TRUE(writer->register_source("mxc", SourceKind::thermometer, thermo).ok());
   EXPECT_EQ(thermo.highest_seq, 999);
   EXPECT_DOUBLE_EQ(*thermo.last_t, 1.7e9 + 999);
   StoreReader reader;
-  ASSERT_TRUE(StoreReader::open(dir.file("lphi.db"), reader).ok);
+  ASSERT_TRUE(StoreReader::open(dir.file("lphi.db"), reader).ok());
   std::string integrity;
-  ASSERT_TRUE(reader.integrity_check(integrity).ok);
+  ASSERT_TRUE(reader.integrity_check(integrity).ok());
   EXPECT_EQ(integrity, "ok");  // SQLite's own verdict on the file
 }
 
 TEST(StoreWriter, ASourceNameCannotChangeItsKind) {
   lphi::testing::TempDir dir;
   std::unique_ptr<StoreWriter> writer;
-  ASSERT_TRUE(StoreWriter::open(dir.file("lphi.db"), {}, writer).ok);
+  ASSERT_TRUE(StoreWriter::open(dir.file("lphi.db"), {}, writer).ok());
   SourceState s;
-  ASSERT_TRUE(writer->register_source("magnet", SourceKind::field, s).ok);
+  ASSERT_TRUE(writer->register_source("magnet", SourceKind::field, s).ok());
   const Status again = writer->register_source("magnet", SourceKind::thermometer, s);
-  EXPECT_FALSE(again.ok);
-  EXPECT_NE(again.message.find("magnet"), std::string::npos) << again.message;
+  EXPECT_FALSE(again.ok());
+  EXPECT_NE(again.message().find("magnet"), std::string::npos) << again.message();
 }
 
 TEST(StoreWriter, ReadOnlyConnectionsCannotWrite) {
   Fixture f;
   StoreReader reader;
-  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok);
+  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok());
   const Status s = reader.database().exec("DELETE FROM sources");
-  EXPECT_FALSE(s.ok);
-  EXPECT_NE(s.message.find("readonly"), std::string::npos) << s.message;
+  EXPECT_FALSE(s.ok());
+  EXPECT_NE(s.message().find("readonly"), std::string::npos) << s.message();
 }
 
 }  // namespace
@@ -322,19 +322,19 @@ TEST(StoreWriter, TasksRunInOrderWithReadingsAndFailAlone) {
   ASSERT_TRUE(f.writer->try_submit(after));
   ASSERT_TRUE(results.wait_for(4));
 
-  EXPECT_TRUE(results.done[0].status.ok);
-  EXPECT_TRUE(results.done[1].status.ok) << results.done[1].status.message;
-  EXPECT_FALSE(results.done[2].status.ok);
-  EXPECT_NE(results.done[2].status.message.find("no_such_table"), std::string::npos)
-      << results.done[2].status.message;
-  EXPECT_TRUE(results.done[3].status.ok);
+  EXPECT_TRUE(results.done[0].status.ok());
+  EXPECT_TRUE(results.done[1].status.ok()) << results.done[1].status.message();
+  EXPECT_FALSE(results.done[2].status.ok());
+  EXPECT_NE(results.done[2].status.message().find("no_such_table"), std::string::npos)
+      << results.done[2].status.message();
+  EXPECT_TRUE(results.done[3].status.ok());
   EXPECT_EQ(seen_by_task, 500);
   EXPECT_EQ(f.stored_lockin().size(), 1000u);
 
   StoreReader reader;
-  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok);
+  ASSERT_TRUE(StoreReader::open(f.dir.file("lphi.db"), reader).ok());
   Statement names;
-  ASSERT_TRUE(Statement::prepare(reader.database(), "SELECT name FROM samples ORDER BY name", names).ok);
+  ASSERT_TRUE(Statement::prepare(reader.database(), "SELECT name FROM samples ORDER BY name", names).ok());
   std::vector<std::string> got;
   while (names.step() == SQLITE_ROW) got.push_back(names.column_text(0));
   EXPECT_EQ(got, std::vector<std::string>{"film-t"});
