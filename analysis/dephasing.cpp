@@ -13,7 +13,7 @@
 #include <ceres/ceres.h>
 
 #include "analysis/constants.hpp"
-#include "analysis/table_checks.hpp"
+#include "analysis/internal/table_checks.hpp"
 
 namespace lphi::dephasing {
 

@@ -5,7 +5,7 @@
 #include <sstream>
 
 #include "analysis/constants.hpp"
-#include "analysis/special_functions.hpp"
+#include "analysis/internal/special_functions.hpp"
 
 namespace lphi::mc {
 namespace {

@@ -9,8 +9,8 @@
 #include <vector>
 
 #include "analysis/constants.hpp"
-#include "analysis/special_functions.hpp"
-#include "analysis/sweep_fit_function.hpp"
+#include "analysis/internal/special_functions.hpp"
+#include "analysis/internal/sweep_fit_function.hpp"
 
 namespace lphi::fit {
 namespace {

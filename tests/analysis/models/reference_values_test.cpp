@@ -24,7 +24,7 @@
 #include <vector>
 
 #include "analysis/magnetoconductance.hpp"
-#include "analysis/special_functions.hpp"
+#include "analysis/internal/special_functions.hpp"
 
 namespace {
 

@@ -14,7 +14,7 @@
 #include <gsl/gsl_sf_psi.h>
 #include <gsl/gsl_sf_zeta.h>
 
-#include "analysis/special_functions.hpp"
+#include "analysis/internal/special_functions.hpp"
 
 namespace {
 
@@ -339,8 +339,8 @@ TEST(KawabataF3, ValueAtZero) {
 
 TEST(KawabataF3, LargeArgument) {
   // f3(d) ~ d^(-3/2)/48 (PHYSICS.md); the next term of the expansion,
-  // -7/3072 d^(-7/2) (derived in special_functions.hpp, verified against mpmath
-  // in reference_values.csv), bounds the difference.
+  // -7/3072 d^(-7/2) (derived in analysis/internal/special_functions.hpp,
+  // verified against mpmath in reference_values.csv), bounds the difference.
   for (double d : {30.0, 1e3, 1e6, 1e8, 1e12}) {
     const double lead = 1.0 / (48 * d * std::sqrt(d));
     EXPECT_LE(std::fabs(kawabata_f3(d) - lead), 1.01 * 7.0 / 3072 / (d * d * d * std::sqrt(d)) + 4 * eps * lead)

@@ -17,7 +17,7 @@
 
 #include "analysis/conductance.hpp"
 #include "analysis/magnetoconductance.hpp"
-#include "analysis/special_functions.hpp"
+#include "analysis/internal/special_functions.hpp"
 #include "analysis/sweep_fit.hpp"
 #include "analysis/synthetic.hpp"
 

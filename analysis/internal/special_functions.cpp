@@ -1,4 +1,4 @@
-#include "analysis/special_functions.hpp"
+#include "analysis/internal/special_functions.hpp"
 
 #include <algorithm>
 #include <array>

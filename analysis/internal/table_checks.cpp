@@ -1,4 +1,4 @@
-#include "analysis/table_checks.hpp"
+#include "analysis/internal/table_checks.hpp"
 
 #include <cmath>
 #include <string>

@@ -1,12 +1,14 @@
-// The fit function of one sweep fit (sweep_fit.hpp), shared by sweep_fit.cpp
-// and the Levenberg-Marquardt solves of sweep_fit_lm.hpp: the model and its
-// geometry, the parameter layout, the points of one pass and the two
-// evaluations the solver asks for. Internal to the fit; nothing outside
-// analysis/sweep_fit*.cpp uses it.
+// The fit function of one sweep fit (analysis/sweep_fit.hpp), shared by
+// analysis/sweep_fit.cpp and the Levenberg-Marquardt solves of
+// analysis/internal/sweep_fit_lm.hpp: the model and its geometry, the
+// parameter layout, the points of one pass and the two evaluations the solver
+// asks for. Internal to the fit; nothing outside analysis/ (and its tests)
+// includes it.
 //
 // The solves for 1, 2, 3 and 4 parameters are instantiated in a translation
-// unit each (sweep_fit_lm.cpp.in, one per count) so that they compile in
-// parallel; sweep_fit.cpp calls them through the declarations below.
+// unit each (analysis/sweep_fit_lm.cpp.in, one per count) so that they
+// compile in parallel; sweep_fit.cpp calls them through the declarations
+// below.
 #pragma once
 
 #include <algorithm>
@@ -21,7 +23,7 @@
 
 #include "analysis/constants.hpp"
 #include "analysis/magnetoconductance.hpp"
-#include "analysis/special_functions.hpp"
+#include "analysis/internal/special_functions.hpp"
 
 namespace lphi::fit::detail {
 
@@ -71,8 +73,8 @@ struct Shape {
     return {};
   }
 
-  // The field at which a length leaves the low-field regime (see the header)
-  // and its inverse.
+  // The field at which a length leaves the low-field regime
+  // (analysis/sweep_fit.hpp) and its inverse.
   double field_of_length(double length_m) const {
     if (model == mc::Model::wire1d) return std::sqrt(3.0) * kHbar / (kE * width_m * length_m);
     return mc::characteristic_field_t(length_m);
@@ -210,7 +212,7 @@ struct PassResult {
 };
 
 // One Levenberg-Marquardt solve with P = layout.size parameters from theta
-// (sweep_fit_lm.hpp). On return theta is the solution and residuals and
+// (analysis/internal/sweep_fit_lm.hpp). On return theta is the solution and residuals and
 // jacobian (column-major, n x P) are those at it.
 template <int P>
 PassResult tiny_solve(Evaluations& evaluations, bool errors_known, int max_iterations,

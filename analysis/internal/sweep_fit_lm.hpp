@@ -12,7 +12,7 @@
 #include <cstdio>
 #include <vector>
 
-#include "analysis/sweep_fit_function.hpp"
+#include "analysis/internal/sweep_fit_function.hpp"
 
 namespace lphi::fit::detail {
 
@@ -26,8 +26,8 @@ inline double sum_of_squares(const double* r, std::size_t n) {
 // and g = J^T r at the iterate, the step is delta = (J^T J)^-1 g and the
 // chi-square it would remove is g^T delta (for a linear model exactly,
 // near the minimum to second order). The covariance is (J^T J)^-1, times
-// chi2/(n - p) when the point errors are unknown (see the header), so the
-// step's length in standard errors is sqrt(g^T delta) or
+// chi2/(n - p) when the point errors are unknown (analysis/sweep_fit.hpp), so
+// the step's length in standard errors is sqrt(g^T delta) or
 // sqrt(g^T delta (n - p)/chi2). Returns +infinity when J^T J is singular.
 template <int P>
 double gauss_newton_step_in_standard_errors(const double* residuals, const double* jacobian,
@@ -121,13 +121,14 @@ class SweepResiduals {
 
 // Convergence, besides the Gauss-Newton step test above (which normally
 // ends the solve first), as in Ceres' defaults for a small problem: the
-// chi-square changes by less than kFunctionTolerance of itself, or the step is below
-// kParameterTolerance relative, or the (Jacobi-scaled) gradient's largest
-// entry is below kGradientTolerance. Residuals are of order one (see the
-// header), so the cost is ~n/2 in units of the noise; a chi-square change
-// ~1e-7 n means the step before the last was ~0.01 standard errors for
-// n <= 1e4, and Gauss-Newton steps near the minimum shrink quadratically, so
-// the solution sits far closer than that to the minimum.
+// chi-square changes by less than kFunctionTolerance of itself, or the step
+// is below kParameterTolerance relative, or the (Jacobi-scaled) gradient's
+// largest entry is below kGradientTolerance. Residuals are of order one (see
+// analysis/sweep_fit.hpp), so the cost is ~n/2 in units of the noise; a
+// chi-square change ~1e-7 n means the step before the last was ~0.01
+// standard errors for n <= 1e4, and Gauss-Newton steps near the minimum
+// shrink quadratically, so the solution sits far closer than that to the
+// minimum.
 constexpr double kFunctionTolerance = 1e-7;
 constexpr double kParameterTolerance = 1e-8;
 constexpr double kGradientTolerance = 1e-10;
