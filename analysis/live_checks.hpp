@@ -7,7 +7,7 @@
 // Bad input (non-finite, or negative where a size is meant) gives a result
 // with `error` naming the argument and every flag false; nothing throws.
 //
-// 1. Dimensional regime (PHYSICS.md "Dimensional regime"; Lee and
+// 1. Dimensional regime (analysis/PHYSICS.md, "Dimensional regime"; Lee and
 //    Ramakrishnan, Rev. Mod. Phys. 57, 287 (1985), for the classification;
 //    the margin is common practice). With a length L (L_phi for weak
 //    localization, L_T = sqrt(hbar D / (k_B T)) for the interaction
@@ -20,7 +20,8 @@
 //    An unknown width (0) counts as wide (w = infinity), an unknown
 //    thickness (0) as thin (t = 0): a sample without geometry is 2d.
 //
-// 2. Excitation heating (PHYSICS.md "Electron heating", common practice):
+// 2. Excitation heating (analysis/PHYSICS.md, "Electron heating"; common
+//    practice):
 //    the ratio r = e V / (k_B T) of the voltage across the sample to the
 //    thermal energy; keep r below 1 (k_B T / e = 8.6 uV at 100 mK). For a
 //    short wire whose electrons cool only by conduction to pads at T (no
@@ -34,7 +35,8 @@
 //    e V L_phi / L < k_B T is reported when L_phi and the length between the
 //    probes are given; it is necessary, not sufficient.
 //
-// 3. Lock-in (PHYSICS.md "From the measurement to the sheet conductance"):
+// 3. Lock-in (analysis/PHYSICS.md, "From the measurement to the sheet
+//    conductance"):
 //    an overload is the instrument's flag, or |X| >= range or |Y| >= range
 //    when the range is known; the quadrature ratio is |Y / X| (+infinity when
 //    X = 0 and Y != 0; 0 when both are 0). A large quadrature means

@@ -6,7 +6,8 @@
 // analysis/thermometry.hpp).
 //
 // Why sigma(0) cannot be used as it is. In 2D (Lee and Ramakrishnan, Rev.
-// Mod. Phys. 57, 287 (1985); PHYSICS.md "Zero-field temperature dependence")
+// Mod. Phys. 57, 287 (1985); analysis/PHYSICS.md, "Zero-field temperature
+// dependence")
 //   sigma(T) = const + (e^2/(pi h)) [ -alpha ln(L_phi(T)^2) + (1 - 3F/4) ln T ]
 // in the weak-localization part -alpha ln(tau_phi/tau) = -alpha ln(L_phi^2/l^2)
 // (HLN; Bergmann, Phys. Rep. 107, 1 (1984)) plus the interaction part. With

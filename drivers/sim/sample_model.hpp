@@ -2,10 +2,11 @@
 // a sheet conductance, and the conductance into a lock-in voltage. Pure
 // functions of plain values; no I/O, no state, thread-safe.
 //
-// Dephasing (PHYSICS.md, "Dephasing rate versus temperature"):
+// Dephasing (analysis/PHYSICS.md, "Dephasing rate versus temperature"):
 //   1/tau_phi(T_e) = gamma0 + A T_e^p,   L_phi = sqrt(D tau_phi).
 //
-// Electron heating (PHYSICS.md, "Electron heating"): once the fault is on,
+// Electron heating (analysis/PHYSICS.md, "Electron heating"): once the fault
+// is on,
 //   T_e = (T^k + T_floor^k)^(1/k),
 // k = 2 being the short-wire, pad-cooled form T_e^2 = T^2 + (3/(4 pi^2))(eV/k_B)^2
 // with T_floor = (sqrt(3)/(2 pi)) eV/k_B; k = 5 or 6 is electron-phonon
@@ -24,9 +25,10 @@
 // + psi(1/2)] = alpha [ln(2 L_phi^2 / l^2) + psi(1/2)], the familiar
 // -alpha ln(L_phi^2/l^2) law; with L_phi^2 proportional to T^-p it gives the
 // zero-field slope d sigma / d ln T = (e^2/(pi h)) (alpha p + kappa_ee) of
-// PHYSICS.md ("Zero-field temperature dependence"). The same construction
-// gives a correction proportional to L_phi/w for the wire and a finite one in
-// 3D, as it should, and it keeps the field dependence exactly the model's:
+// analysis/PHYSICS.md, "Zero-field temperature dependence". The same
+// construction gives a correction proportional to L_phi/w for the wire and a
+// finite one in 3D, as it should (analysis/PHYSICS.md, "Zero-field
+// corrections beyond 2D"), and it keeps the field dependence exactly the model's:
 // sigma(B) - sigma(0) = Delta(B). R_D is therefore the sheet resistance
 // without the weak-localization correction (the Drude value) at T_e = T_ref.
 //

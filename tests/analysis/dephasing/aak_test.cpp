@@ -20,7 +20,8 @@ constexpr double kKb = 1.380649e-23;
 constexpr double kHbar = kH / (2.0 * std::numbers::pi);
 
 TEST(Aak2d, CheckValueAtOneKiloOhmAndOneKelvin) {
-  // PHYSICS.md [derived] check value: R_sq = 1 kohm, T = 1 K gives
+  // analysis/PHYSICS.md, "Dephasing rate versus temperature", check value
+  // (derivation): R_sq = 1 kohm, T = 1 K gives
   // 1/tau_phi = 1.30e10 s^-1 (tau_phi = 77 ps), from the form quoted by Lin
   // and Bird, J. Phys.: Condens. Matter 14, R501 (2002). Quoted to three
   // figures, so the tolerance is half a unit in the last figure.
@@ -77,7 +78,8 @@ TEST(Aak1d, Scalings) {
 }
 
 TEST(ExpectedExponent, ElectronElectronValues) {
-  // PHYSICS.md: p = 2/3 (quasi-1D), 1 (2D), 3/2 (3D) for electron-electron
+  // analysis/PHYSICS.md, "Dephasing rate versus temperature": p = 2/3
+  // (quasi-1D), 1 (2D), 3/2 (3D) for electron-electron
   // dephasing (AAK 1982; Lin and Bird 2002).
   EXPECT_DOUBLE_EQ(lphi::dephasing::expected_exponent(1), 2.0 / 3.0);
   EXPECT_DOUBLE_EQ(lphi::dephasing::expected_exponent(2), 1.0);

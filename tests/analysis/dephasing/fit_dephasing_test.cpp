@@ -240,7 +240,8 @@ TEST(FitDephasing, AakRatioAgainstItsOwnTruth) {
   const auto r = fit_dephasing(make_lphi_table(truth, log_spaced(0.02, 1.0, 25), 0.03, 17), o);
   ASSERT_TRUE(r.aak_ratio && r.aak_ratio_err && r.aak_rate_per_s_at_1k);
   EXPECT_LT(std::abs(*r.aak_ratio - 1.0), 3.0 * *r.aak_ratio_err);
-  EXPECT_NEAR(*r.aak_rate_per_s_at_1k, 1.30e10, 0.005e10);  // PHYSICS.md check value
+  // Check value of analysis/PHYSICS.md, "Dephasing rate versus temperature".
+  EXPECT_NEAR(*r.aak_rate_per_s_at_1k, 1.30e10, 0.005e10);
   // 1D AAK with a p = 2/3 truth built the same way.
   DephasingOptions o1;
   o1.dimension = 1;

@@ -29,7 +29,8 @@ constexpr double kNoise = 0.02;   // e^2/(pi h)
 using lphi::testing::ZStats;
 
 TEST(Thermometry, UnitOfKappaPerDecade) {
-  // PHYSICS.md [derived]: one unit of kappa is e^2/(pi h) ln 10 = 2.84e-5 S
+  // analysis/PHYSICS.md, "Zero-field temperature dependence" (derivation):
+  // one unit of kappa is e^2/(pi h) ln 10 = 2.84e-5 S
   // per decade of T. e^2/(pi h) from the SI 2019 exact e and h (BIPM SI
   // brochure, 9th edition) typed here, so the check is independent of
   // analysis/constants.hpp; 2.84e-5 is quoted to three figures.

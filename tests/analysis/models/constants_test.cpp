@@ -36,13 +36,15 @@ TEST(Constants, ConductanceUnits) {
   expect_truncation_of(1.0 / von_klitzing_ohm, 3.87404586e-5, 1e-13);
   // Conductance quantum G_0 = 2e^2/h = 7.748 091 729...e-5 S (CODATA 2018).
   expect_truncation_of(conductance_quantum_s, 7.748091729e-5, 1e-14);
-  // e^2/(pi h) = 1.2331471e-5 S (PHYSICS.md, rounded to 8 digits; = G_0/(2 pi)):
+  // e^2/(pi h) = 1.2331471e-5 S (analysis/PHYSICS.md, "Constants and units",
+  // rounded to 8 digits; = G_0/(2 pi)):
   // within half a unit of the last digit.
   EXPECT_NEAR(wl_conductance_s, 1.2331471e-5, 0.5e-12);
 }
 
 TEST(Constants, IdentitiesBetweenUnits) {
-  // e^2/(pi h) = e^2/(2 pi^2 hbar) (the two notations of PHYSICS.md) and
+  // e^2/(pi h) = e^2/(2 pi^2 hbar) (the two notations of
+  // analysis/PHYSICS.md, "Constants and units") and
   // G_0 = e^2/(pi hbar) = 2/R_K; these hold to rounding (a few ulp).
   const double e2 = elementary_charge_c * elementary_charge_c;
   EXPECT_NEAR(wl_conductance_s / (e2 / (2 * pi * pi * hbar_j_s)), 1.0, 1e-15);

@@ -1,4 +1,5 @@
-// The magnetoconductance models: limits stated in PHYSICS.md and the papers
+// The magnetoconductance models: limits stated in analysis/PHYSICS.md (the
+// sections of each model) and the papers
 // named in analysis/magnetoconductance.hpp, symmetries, exact zeros, the
 // gradients against central finite differences and analytic identities, an
 // HLN cross-check computed from GSL's digamma, and refusal of bad input.
@@ -134,7 +135,8 @@ TEST(Models, TinyFieldsStayFiniteAndPositive) {
 // HLN limits.
 
 TEST(Hln2d, LowFieldSeries) {
-  // PHYSICS.md [derived]: B << B_phi: bracket = (B/B_phi)^2/24 - 7 (B/B_phi)^4/960,
+  // analysis/PHYSICS.md, "2D weak localization (HLN)" (derivation):
+  // B << B_phi: bracket = (B/B_phi)^2/24 - 7 (B/B_phi)^4/960,
   // error below the next term 31 (B/B_phi)^6/8064.
   const double lphi = 5e-7;
   const double bphi = characteristic_field_t(lphi);
@@ -150,7 +152,8 @@ TEST(Hln2d, LowFieldSeries) {
 }
 
 TEST(Hln2d, HighFieldLimit) {
-  // PHYSICS.md [derived]: B >> B_phi: bracket = ln(B/B_phi) + psi(1/2) + O(B_phi/B);
+  // analysis/PHYSICS.md, "2D weak localization (HLN)" (derivation):
+  // B >> B_phi: bracket = ln(B/B_phi) + psi(1/2) + O(B_phi/B);
   // the O(B_phi/B) term is psi'(1/2) B_phi/B = (pi^2/2) B_phi/B (DLMF 5.15.3),
   // leaving an error below 8.5 (B_phi/B)^2.
   const double psi_half = -1.96351002602142347;  // DLMF 5.4.13

@@ -123,7 +123,8 @@ TEST(Digamma, OutsideDomainIsNan) {
 // The bracket b(x) = psi(1/2 + x) - ln x.
 
 TEST(WlBracket, LowFieldSeries) {
-  // PHYSICS.md / DLMF 5.11.2 with h = 1/2: b = 1/(24 x^2) - 7/(960 x^4) + ...
+  // analysis/PHYSICS.md, "2D weak localization (HLN)" / DLMF 5.11.2 with
+  // h = 1/2: b = 1/(24 x^2) - 7/(960 x^4) + ...
   // The next term 31/(8064 x^6) bounds the error of the two-term form.
   for (double x : {20.0, 100.0, 1e3, 1e5, 1e8, 1e12}) {
     const double series = 1.0 / (24 * x * x) - 7.0 / (960 * std::pow(x, 4));
@@ -145,7 +146,8 @@ TEST(WlBracket, HighFieldLimit) {
 }
 
 TEST(WlBracket, PositiveAndDecreasing) {
-  // b > 0 and db/dx < 0 for all x > 0 (PHYSICS.md: the bracket grows with B).
+  // b > 0 and db/dx < 0 for all x > 0 (analysis/PHYSICS.md, "2D weak
+  // localization (HLN)": the bracket grows with B).
   for (double x : logspace(-6, 15, 400)) {
     EXPECT_GT(wl_bracket(x), 0.0) << x;
     EXPECT_LT(wl_bracket_derivative(x), 0.0) << x;
@@ -331,14 +333,16 @@ TEST(HurwitzZeta, ShiftRecurrenceDlmf25113) {
 }
 
 TEST(KawabataF3, ValueAtZero) {
-  // f3(0) = (sqrt 2 - 1)|zeta(1/2)| = 0.604898643421630 (PHYSICS.md; digits
-  // confirmed with mpmath at 30 digits: 0.60489864342163037025).
+  // f3(0) = (sqrt 2 - 1)|zeta(1/2)| = 0.604898643421630 (analysis/PHYSICS.md,
+  // "3D film (Kawabata)"; digits confirmed with mpmath at 30 digits:
+  // 0.60489864342163037025).
   EXPECT_LE(rel_err(kawabata_f3(0.0), 0.60489864342163037025), 8 * eps);
   EXPECT_LE(rel_err(kawabata_f3(0.0), (std::sqrt(2.0) - 1.0) * std::fabs(zeta_half)), 8 * eps);
 }
 
 TEST(KawabataF3, LargeArgument) {
-  // f3(d) ~ d^(-3/2)/48 (PHYSICS.md); the next term of the expansion,
+  // f3(d) ~ d^(-3/2)/48 (analysis/PHYSICS.md, "3D film (Kawabata)"); the next
+  // term of the expansion,
   // -7/3072 d^(-7/2) (derived in analysis/internal/special_functions.hpp,
   // verified against mpmath in reference_values.csv), bounds the difference.
   for (double d : {30.0, 1e3, 1e6, 1e8, 1e12}) {
@@ -349,7 +353,8 @@ TEST(KawabataF3, LargeArgument) {
 }
 
 TEST(KawabataF3, ClosedFormAtModerateArgument) {
-  // f3(d) = -zeta(1/2, 1/2 + d) - 2 sqrt(d) (PHYSICS.md, derived): for d <= 2
+  // f3(d) = -zeta(1/2, 1/2 + d) - 2 sqrt(d) (analysis/PHYSICS.md, "3D film
+  // (Kawabata)", derivation): for d <= 2
   // this difference cancels by at most a factor ~30 (zeta(1/2, 2.5) = -2.3
   // against f3(2) = 0.08) on top of the ~10x inside the Euler-Maclaurin sum,
   // so the closed form is an independent route good to ~1e-13.

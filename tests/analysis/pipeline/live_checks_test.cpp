@@ -1,4 +1,5 @@
-// The per-update checks against PHYSICS.md's check values, CODATA and
+// The per-update checks against the check values of analysis/PHYSICS.md
+// ("Electron heating", "Dimensional regime"), CODATA and
 // worked examples: thermal voltage, the wire electron temperature, the
 // thermal length, regime boundaries, lock-in overload and quadrature, and
 // fit quality on real sweep fits.
@@ -27,9 +28,9 @@ constexpr double kH = 6.62607015e-34;
 // ---- excitation heating --------------------------------------------------
 
 TEST(LiveChecks, ThermalVoltageAt100mK) {
-  // PHYSICS.md "Electron heating": k_B T / e = 8.6 uV at 100 mK. CODATA 2018
-  // k_B/e = 8.617333262e-5 V/K (exact by the SI definitions) gives
-  // 8.617333262e-6 V; quoted to 2 figures in PHYSICS.md.
+  // analysis/PHYSICS.md, "Electron heating": k_B T / e = 8.6 uV at 100 mK.
+  // CODATA 2018 k_B/e = 8.617333262e-5 V/K (exact by the SI definitions)
+  // gives 8.617333262e-6 V; the note quotes it to 2 figures.
   EXPECT_NEAR(lphi::checks::thermal_voltage_v(0.1), 8.617333262e-6, 1e-15);
   EXPECT_NEAR(lphi::checks::thermal_voltage_v(0.1), 8.6e-6, 0.05e-6);
   const auto c = lphi::checks::excitation_heating(8.617333262e-6, 0.1);
@@ -39,7 +40,8 @@ TEST(LiveChecks, ThermalVoltageAt100mK) {
 }
 
 TEST(LiveChecks, HeatingRiskAtTheRuleOfThumb) {
-  // Rule of thumb (PHYSICS.md, common practice): e V < k_B T. At 100 mK,
+  // Rule of thumb (common practice; analysis/PHYSICS.md, "Electron heating"):
+  // e V < k_B T. At 100 mK,
   // 4 uV is safe (r = 0.46), 10 uV is not (r = 1.16); sign ignored.
   EXPECT_FALSE(lphi::checks::excitation_heating(4e-6, 0.1).risk);
   EXPECT_NEAR(lphi::checks::excitation_heating(4e-6, 0.1).ratio, 4e-6 / (kKb * 0.1 / kE), 1e-14);
@@ -53,7 +55,8 @@ TEST(LiveChecks, HeatingRiskAtTheRuleOfThumb) {
 }
 
 TEST(LiveChecks, WireElectronTemperatureCheckValue) {
-  // PHYSICS.md [derived]: e V = k_B T gives T_e = 1.037 T; exactly
+  // analysis/PHYSICS.md, "Electron heating" (derivation): e V = k_B T gives
+  // T_e = 1.037 T; exactly
   // sqrt(1 + 3/(4 pi^2)) = 1.037299..., checked to the 4 figures quoted and
   // to rounding against the closed form.
   for (double t : {0.01, 0.1, 1.0}) {
@@ -100,8 +103,8 @@ TEST(LiveChecks, ThermalLength) {
 }
 
 TEST(LiveChecks, RegimeBoundaries) {
-  // PHYSICS.md "Dimensional regime": t << L_phi << w is 2D, w, t << L_phi is
-  // quasi-1D, t >> L_phi is 3D; "<<" as a factor margin = 3 (common
+  // analysis/PHYSICS.md, "Dimensional regime": t << L_phi << w is 2D,
+  // w, t << L_phi is quasi-1D, t >> L_phi is 3D; "<<" as a factor margin = 3 (common
   // practice). The boundary is inclusive: margin * a <= b.
   using lphi::checks::classify;
   // A 10 nm film, 100 um wide.

@@ -1,7 +1,7 @@
 // The combined verdict: its truth table from hand-built results, and three
-// physical scenarios built from the published forms (PHYSICS.md "Zero-field
-// temperature dependence", Lee and Ramakrishnan, Rev. Mod. Phys. 57, 287
-// (1985); "Electron heating"), run through the real L_phi(T) fit and the real
+// physical scenarios built from the published forms (analysis/PHYSICS.md,
+// "Zero-field temperature dependence", Lee and Ramakrishnan, Rev. Mod. Phys.
+// 57, 287 (1985); and "Electron heating"), run through the real L_phi(T) fit and the real
 // zero-field thermometry:
 //   intrinsic:  T_e = T, L_phi^-2 = L_sat^-2 + b T,
 //   heating:    T_e = sqrt(T^2 + T_f^2), L_phi^-2 = b T_e (no intrinsic term),

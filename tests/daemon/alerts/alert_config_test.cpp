@@ -94,7 +94,8 @@ TEST(AlertConfig, ExampleParsesAsPrintedAndHoldsEveryDefault) {
 
 // The defaults of the value rules agree with the live checks of
 // analysis/live_checks.hpp, which take them from common practice:
-// chi2_red 3, |Y/X| 0.1, e V / k_B T 1 (PHYSICS.md "Electron heating").
+// chi2_red 3, |Y/X| 0.1, e V / k_B T 1 (analysis/PHYSICS.md, "Electron
+// heating").
 TEST(AlertConfig, DefaultsFollowTheLiveChecks) {
   const AlertConfig c;
   EXPECT_EQ(c.fit_chi2.max_chi2_red, 3.0);

@@ -128,7 +128,8 @@ TEST(LphiFit, NoiseFreeHln2dFromRsqReturnsTheTruth) {
   EXPECT_TRUE(j["converged"].get<bool>());
   EXPECT_TRUE(j["flags"].is_array());
   EXPECT_TRUE(j["lso_m"].is_null());
-  // B_phi = hbar/(4 e L_phi^2) with the SI 2019 exact e and h (PHYSICS.md):
+  // B_phi = hbar/(4 e L_phi^2) with the SI 2019 exact e and h
+  // (analysis/PHYSICS.md, "2D weak localization (HLN)"):
   // 1.054571817e-34 / (4 * 1.602176634e-19 * (200e-9)^2) = 4.113825e-3 T
   // (hbar rounded to 10 digits, so 1e-8 relative; the fitted L_phi adds 2e-6).
   EXPECT_LT(relative(j["b_phi_t"].get<double>(), 4.113825e-3), 3e-6);
@@ -146,7 +147,8 @@ TEST(LphiFit, NoisyHln2dFromStdinAgreesWithin3Sigma) {
 }
 
 TEST(LphiFit, FromResistanceWithSquares) {
-  // R = R_sq * N (PHYSICS.md, four-terminal practice): N = 12.5 squares.
+  // R = R_sq * N (four-terminal practice; analysis/PHYSICS.md, "From the
+  // measurement to the sheet conductance"): N = 12.5 squares.
   TempDir dir;
   const Table t = read_table(
       lphi_ok({"synth", "sweep", "--lphi-m", "150e-9", "--max-field-t", "0.08"}));

@@ -8,8 +8,9 @@
 //   L_phi^-2 = L_sat^-2 + b T^p;
 //   sigma(0, T) = sigma_ref + G0 [ -alpha ln(L_phi(T)^2 / L_phi(t_ref)^2)
 //                                  + kappa_int ln(T / t_ref) ],
-//   G0 = e^2/(pi h) (the 2D form of PHYSICS.md "Zero-field temperature
-//   dependence", weak localization plus interaction, electrons at T).
+//   G0 = e^2/(pi h) (the 2D form of analysis/PHYSICS.md, "Zero-field
+//   temperature dependence": weak localization plus interaction, electrons
+//   at T).
 #pragma once
 
 #include <algorithm>

@@ -146,8 +146,8 @@ double zero_field_slope(const sim::Sample& s, const sim::DephasingLaw& d, double
 }
 
 TEST(SimModel, ZeroFieldConductanceFollowsLnTWithSlopeAlphaPPlusKappa) {
-  // PHYSICS.md, zero-field temperature dependence (Lee and Ramakrishnan, RMP
-  // 57, 287 (1985)): d sigma / d ln T = (e^2/(pi h)) (alpha p + 1 - 3F/4).
+  // analysis/PHYSICS.md, "Zero-field temperature dependence" (Lee and
+  // Ramakrishnan, RMP 57, 287 (1985)): d sigma / d ln T = (e^2/(pi h)) (alpha p + 1 - 3F/4).
   // The simulator's exact bracket departs from the pure logarithm by
   // psi(1/2 + x) - psi(1/2) ~ (pi^2/2) x, x = B_phi/B_tr = l^2/(2 L_phi^2)
   // <= 1e-4 here, so the slope agrees to ~1e-4; tolerance 1e-3.
@@ -169,7 +169,7 @@ TEST(SimModel, ZeroFieldConductanceFollowsLnTWithSlopeAlphaPPlusKappa) {
 }
 
 TEST(SimModel, ElectronHeatingWorkedExampleAndFlatteningBelowTheFloor) {
-  // PHYSICS.md, electron heating: a pad-cooled wire with eV = k_B T has
+  // analysis/PHYSICS.md, "Electron heating": a pad-cooled wire with eV = k_B T has
   // T_e^2 = T^2 + (3/(4 pi^2)) T^2, T_e = 1.037 T (quoted to 4 digits: 5e-4).
   const double pi = std::acos(-1.0);
   const double t = 0.05;

@@ -81,8 +81,9 @@ TEST(SimServer, IdentifiesAndMeasures) {
   EXPECT_EQ(therm.query("*idn?", 2s).value_or(""), "lphi-sim,SIM-THERM,0,0.1");  // case-insensitive
   EXPECT_EQ(magnet.query("*IDN?", 2s).value_or(""), "lphi-sim,SIM-MAGNET,0,0.1");
 
-  // X = I R_sq N g with R_sq = 1/sigma0 at 1 K. By hand from PHYSICS.md:
-  // the zero-field correction is -Delta(B_tr) with, for B_tr >> B_phi,
+  // X = I R_sq N g with R_sq = 1/sigma0 at 1 K. By hand from
+  // analysis/PHYSICS.md, "Zero-field corrections beyond 2D": the zero-field
+  // correction is -Delta(B_tr) with, for B_tr >> B_phi,
   // Delta = ln(B_tr/B_phi) + psi(1/2) (psi(1/2) = -1.9635100260, DLMF
   // 5.4.13), B_tr/B_phi = 2 L_phi^2/l^2, L_phi^2 = D/(A T) = 5e-14 m^2, and
   // e^2/(pi h) = 1.2331471e-5 S. The neglected O(B_phi/B_tr) = 4e-5 term and
