@@ -1,3 +1,11 @@
+// The one-sweep fit (analysis/sweep_fit.hpp): one algorithm, the adaptive
+// field window around Levenberg-Marquardt, read top-down in fit_sweep():
+// check the input, put the sweep in fit form, fix the field scales, choose
+// the first window and start values, solve and move the window until it
+// settles, then the covariance, the reported parameters and the quality
+// flags. The fit function is in analysis/internal/sweep_fit_function.*, the
+// start values in analysis/internal/sweep_fit_start.*, the solves in
+// analysis/internal/sweep_fit_lm.hpp.
 #include "analysis/sweep_fit.hpp"
 
 #include <Eigen/Dense>
@@ -9,23 +17,25 @@
 #include <vector>
 
 #include "analysis/constants.hpp"
-#include "analysis/internal/special_functions.hpp"
 #include "analysis/internal/sweep_fit_function.hpp"
+#include "analysis/internal/sweep_fit_start.hpp"
 
 namespace lphi::fit {
 namespace {
 
 using detail::Data;
 using detail::Evaluations;
+using detail::grid_start;
 using detail::kE;
 using detail::kHbar;
 using detail::kInf;
 using detail::Layout;
 using detail::PassResult;
+using detail::relayout;
 using detail::Shape;
 using detail::tiny_solve;
-using detail::Values;
 using detail::unpack;
+using detail::Values;
 
 constexpr double kWl = si::wl_conductance_s;  // e^2/(pi h), the residual unit
 
@@ -38,7 +48,6 @@ constexpr double kResolvedStepFraction = 0.25;
 constexpr double kBoundFactor = 100.0;
 constexpr int kMaxWindowPasses = 8;
 constexpr double kWindowSettle = 0.05;
-constexpr std::size_t kGridSubsample = 64;
 
 Layout make_layout(const Shape& shape, bool alpha_free, double alpha_held, bool offset,
                    bool background) {
@@ -51,236 +60,6 @@ Layout make_layout(const Shape& shape, bool alpha_free, double alpha_held, bool 
   l.size = next;
   l.alpha_held = alpha_held;
   return l;
-}
-
-// hbar/(4e), so that ln B_phi = ln(hbar/(4e)) - 2 ln L_phi.
-const double kLnHbarOver4e = std::log(kHbar / (4.0 * kE));
-
-// evaluate() for hln2d, the model most sweeps are fitted with, in the form
-// of mc::hln2d_grad (alpha b(x), -2 alpha x b'(x), b(x)) but with x = B_phi/|B|
-// and ln x from the per-sweep 1/|B| and ln|B|: one multiplication and one
-// subtraction per point instead of a division and a logarithm.
-void evaluate_hln(const Layout& l, const Data& d, const double* theta, double* residuals,
-                  double* jacobian, std::span<special::BracketAndSlope> brackets) {
-  const Values v = unpack(l, theta);
-  const double ln_b_phi = kLnHbarOver4e - 2.0 * theta[l.ln_lphi];
-  const std::size_t n = d.size();
-  special::wl_bracket_and_log_slope(std::exp(ln_b_phi), ln_b_phi, d.inverse_field,
-                                    d.ln_inverse_field, brackets.first(n));
-  auto column = [&](int k) { return jacobian + static_cast<std::size_t>(k) * n; };
-  double* const j_lphi = column(l.ln_lphi);
-  double* const j_alpha = l.alpha >= 0 ? column(l.alpha) : nullptr;
-  double* const j_offset = l.offset >= 0 ? column(l.offset) : nullptr;
-  double* const j_background = l.background >= 0 ? column(l.background) : nullptr;
-  const double* const field = d.field_t.data();
-  for (std::size_t i = 0; i < n; ++i) {
-    const special::BracketAndSlope s = brackets[i];
-    const double w = d.weight[i];
-    const double b2 = field[i] * field[i];
-    residuals[i] = w * (v.alpha * s.value + v.offset + v.background * b2 - d.y[i]);
-    j_lphi[i] = -2.0 * w * v.alpha * s.log_slope;
-    if (j_alpha != nullptr) j_alpha[i] = w * s.value;
-    if (j_offset != nullptr) j_offset[i] = w;
-    if (j_background != nullptr) j_background[i] = w * b2;
-  }
-}
-
-}  // namespace
-
-namespace detail {
-
-void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* theta,
-              double* residuals, double* jacobian, std::span<special::BracketAndSlope> scratch) {
-  if (shape.model == mc::Model::hln2d) {
-    evaluate_hln(l, d, theta, residuals, jacobian, scratch);
-    return;
-  }
-  const Values v = unpack(l, theta);
-  const std::size_t n = d.size();
-  auto column = [&](int k) { return jacobian + static_cast<std::size_t>(k) * n; };
-  double* const j_lphi = column(l.ln_lphi);
-  double* const j_lso = l.ln_lso >= 0 ? column(l.ln_lso) : nullptr;
-  double* const j_alpha = l.alpha >= 0 ? column(l.alpha) : nullptr;
-  double* const j_offset = l.offset >= 0 ? column(l.offset) : nullptr;
-  double* const j_background = l.background >= 0 ? column(l.background) : nullptr;
-  for (std::size_t i = 0; i < n; ++i) {
-    const double b = d.field_t[i];
-    const double w = d.weight[i];
-    const mc::ModelGradient g = shape.gradient(b, v.lphi_m, v.lso_m, v.alpha);
-    residuals[i] = w * (g.value + v.offset + v.background * b * b - d.y[i]);
-    j_lphi[i] = w * g.d_ln_lphi;
-    if (j_lso != nullptr) j_lso[i] = w * g.d_ln_lso;
-    if (j_alpha != nullptr) j_alpha[i] = w * g.d_alpha;
-    if (j_offset != nullptr) j_offset[i] = w;
-    if (j_background != nullptr) j_background[i] = w * b * b;
-  }
-}
-
-}  // namespace detail
-
-namespace {
-
-// Linear least squares for the parameters that enter linearly (alpha when
-// free, offset, background) with the lengths held, over the points `index`.
-struct LinearSolution {
-  double ssr = kInf;
-  double alpha = 1, offset = 0, background = 0;
-};
-
-LinearSolution solve_linear(const Shape& shape, const Layout& l, const Data& d,
-                            const std::vector<std::size_t>& index, double lphi_m, double lso_m) {
-  const bool alpha_free = l.alpha >= 0;
-  const int n_lin = (alpha_free ? 1 : 0) + (l.offset >= 0 ? 1 : 0) + (l.background >= 0 ? 1 : 0);
-  const double alpha = alpha_free ? 1.0 : l.alpha_held;
-  std::vector<double> basis(index.size());
-  if (shape.model == mc::Model::hln2d) {
-    // As evaluate_hln: x = B_phi/|B| and ln x from the per-sweep terms.
-    const double ln_b_phi = std::log(mc::characteristic_field_t(lphi_m));
-    const double b_phi = std::exp(ln_b_phi);
-    for (std::size_t k = 0; k < index.size(); ++k) {
-      const std::size_t i = index[k];
-      basis[k] = alpha * special::wl_bracket(b_phi * d.inverse_field[i],
-                                             ln_b_phi + d.ln_inverse_field[i]);
-    }
-  } else {
-    for (std::size_t k = 0; k < index.size(); ++k)
-      basis[k] = shape.value(d.field_t[index[k]], lphi_m, lso_m, alpha);
-  }
-
-  // The design row of point k (unused entries stay 0, so the fixed-size sums
-  // below leave them out) and the target it is fitted to.
-  auto columns = [&](std::size_t k, double* x) {
-    int c = 0;
-    const double b = d.field_t[index[k]];
-    if (alpha_free) x[c++] = basis[k];
-    if (l.offset >= 0) x[c++] = 1.0;
-    if (l.background >= 0) x[c++] = b * b;
-  };
-  auto target = [&](std::size_t k) { return d.y[index[k]] - (alpha_free ? 0.0 : basis[k]); };
-  Eigen::Matrix3d normal = Eigen::Matrix3d::Zero();
-  Eigen::Vector3d rhs = Eigen::Vector3d::Zero();
-  for (std::size_t k = 0; k < index.size(); ++k) {
-    Eigen::Vector3d x = Eigen::Vector3d::Zero();
-    columns(k, x.data());
-    const double w2 = d.weight[index[k]] * d.weight[index[k]];
-    rhs += (w2 * target(k)) * x;
-    normal += (w2 * x) * x.transpose();
-  }
-  Eigen::Vector3d coef = Eigen::Vector3d::Zero();
-  if (n_lin > 0) {
-    const auto block = normal.topLeftCorner(n_lin, n_lin);
-    Eigen::VectorXd solved = block.ldlt().solve(rhs.head(n_lin));
-    if (!solved.allFinite()) return {};
-    coef.head(n_lin) = solved;
-  }
-  LinearSolution s;
-  int c = 0;
-  s.alpha = alpha_free ? coef[c++] : l.alpha_held;
-  if (l.offset >= 0) s.offset = coef[c++];
-  if (l.background >= 0) s.background = coef[c++];
-  s.ssr = 0.0;
-  for (std::size_t k = 0; k < index.size(); ++k) {
-    Eigen::Vector3d x = Eigen::Vector3d::Zero();
-    columns(k, x.data());
-    const double e = d.weight[index[k]] * (target(k) - coef.dot(x));
-    s.ssr += e * e;
-  }
-  if (!std::isfinite(s.ssr)) s.ssr = kInf;
-  return s;
-}
-
-void store_linear(const Layout& l, const LinearSolution& s, double* theta) {
-  if (l.alpha >= 0) theta[l.alpha] = s.alpha;
-  if (l.offset >= 0) theta[l.offset] = s.offset;
-  if (l.background >= 0) theta[l.background] = s.background;
-}
-
-// At most m indices spread evenly over 0 .. n-1 (all of them when n <= m).
-std::vector<std::size_t> subsample(std::size_t n, std::size_t m) {
-  std::vector<std::size_t> index;
-  m = std::min(n, m);
-  for (std::size_t k = 0; k < m; ++k)
-    index.push_back(m > 1 ? (k * (n - 1) + (m - 1) / 2) / (m - 1) : 0);
-  index.erase(std::unique(index.begin(), index.end()), index.end());
-  return index;
-}
-
-// Vertex of the parabola through (-1, a), (0, b), (1, c), clamped to [-1, 1].
-double parabola_vertex(double a, double b, double c) {
-  const double curvature = a - 2.0 * b + c;
-  if (!(curvature > 0.0) || !std::isfinite(curvature)) return 0.0;
-  return std::clamp(0.5 * (a - c) / curvature, -1.0, 1.0);
-}
-
-// Data-driven start: a grid of characteristic fields from field_lo/2 to
-// 2 field_hi by factors of 2 for each length, the linear parameters solved
-// exactly at each grid point on a subsample, then a parabolic refinement of
-// the best point along each length. Returns the full parameter vector.
-std::vector<double> grid_start(const Shape& shape, const Layout& l, const Data& d, double field_lo,
-                               double field_hi) {
-  const std::vector<std::size_t> sub = subsample(d.size(), kGridSubsample);
-
-  std::vector<double> log_field;
-  for (double f = 0.5 * field_lo; f <= 2.0 * field_hi * 1.0000001; f *= 2.0)
-    log_field.push_back(std::log(f));
-  if (log_field.size() < 3) {
-    const double mid = std::log(std::sqrt(field_lo * field_hi));
-    log_field = {mid - std::log(2.0), mid, mid + std::log(2.0)};
-  }
-  const std::size_t g = log_field.size();
-  const std::size_t g_so = shape.has_lso() ? g : 1;
-
-  auto ssr_at = [&](double log_field_phi, double log_field_so) {
-    const double lphi = shape.length_of_field(std::exp(log_field_phi));
-    const double lso = shape.has_lso() ? shape.length_of_field(std::exp(log_field_so)) : 0.0;
-    return solve_linear(shape, l, d, sub, lphi, lso).ssr;
-  };
-
-  std::vector<double> table(g * g_so, kInf);
-  std::size_t best = 0;
-  for (std::size_t i = 0; i < g; ++i)
-    for (std::size_t j = 0; j < g_so; ++j) {
-      table[i * g_so + j] = ssr_at(log_field[i], log_field[j]);
-      if (table[i * g_so + j] < table[best]) best = i * g_so + j;
-    }
-  const std::size_t bi = best / g_so, bj = best % g_so;
-  const double step = std::log(2.0);
-  double log_phi = log_field[bi];
-  double log_so = log_field[bj];
-  if (bi > 0 && bi + 1 < g)
-    log_phi += step * parabola_vertex(table[(bi - 1) * g_so + bj], table[best],
-                                      table[(bi + 1) * g_so + bj]);
-  if (shape.has_lso() && bj > 0 && bj + 1 < g_so)
-    log_so +=
-        step * parabola_vertex(table[bi * g_so + bj - 1], table[best], table[bi * g_so + bj + 1]);
-  // Keep the refinement only if it does not make things worse.
-  if (ssr_at(log_phi, log_so) > table[best]) {
-    log_phi = log_field[bi];
-    log_so = log_field[bj];
-  }
-
-  std::vector<double> theta(static_cast<std::size_t>(l.size), 0.0);
-  const double lphi = shape.length_of_field(std::exp(log_phi));
-  const double lso = shape.has_lso() ? shape.length_of_field(std::exp(log_so)) : 0.0;
-  theta[static_cast<std::size_t>(l.ln_lphi)] = std::log(lphi);
-  if (l.ln_lso >= 0) theta[static_cast<std::size_t>(l.ln_lso)] = std::log(lso);
-  store_linear(l, solve_linear(shape, l, d, sub, lphi, lso), theta.data());
-  return theta;
-}
-
-// theta expressed in a layout for new data or a new alpha decision: lengths
-// carried over, linear parameters solved afresh (on the grid's subsample;
-// LM refines them).
-std::vector<double> relayout(const Shape& shape, const Layout& from, const Layout& to,
-                             const Data& d, const std::vector<double>& theta) {
-  const Values v = unpack(from, theta.data());
-  std::vector<double> out(static_cast<std::size_t>(to.size), 0.0);
-  out[static_cast<std::size_t>(to.ln_lphi)] = std::log(v.lphi_m);
-  if (to.ln_lso >= 0) out[static_cast<std::size_t>(to.ln_lso)] = std::log(v.lso_m);
-  store_linear(to,
-               solve_linear(shape, to, d, subsample(d.size(), kGridSubsample), v.lphi_m, v.lso_m),
-               out.data());
-  return out;
 }
 
 double characteristic_field(const Shape& shape, const Values& v) {
@@ -369,6 +148,335 @@ void add_flag(SweepFitResult& r, Flag f) {
   if (!r.has(f)) r.flags.push_back(f);
 }
 
+bool alpha_may_be_free(const SweepFitOptions& o) {
+  return o.model == mc::Model::hln2d && !o.alpha_fixed;
+}
+
+// What is wrong with the points, if anything: their number, then point by
+// point the field, the conductance and the error, then whether any point
+// lies off zero field.
+std::string check_points(std::span<const conductance::DeltaSigmaPoint> points,
+                         std::span<const double> sigma_err_s) {
+  if (points.empty()) return "the sweep has no points";
+  if (!sigma_err_s.empty() && sigma_err_s.size() != points.size())
+    return "sigma_err_s has " + std::to_string(sigma_err_s.size()) + " entries for " +
+           std::to_string(points.size()) + " points";
+  std::size_t n_nonzero = 0;
+  for (std::size_t i = 0; i < points.size(); ++i) {
+    const double b = std::abs(points[i].field_t);
+    if (!std::isfinite(b)) return "point " + std::to_string(i) + " has a non-finite field";
+    if (!std::isfinite(points[i].delta_sigma_s))
+      return "point " + std::to_string(i) + " has a non-finite conductance";
+    if (!sigma_err_s.empty() && !positive_finite(sigma_err_s[i]))
+      return "point " + std::to_string(i) + " has an error that is not finite and > 0";
+    if (b > 0.0) ++n_nonzero;
+  }
+  if (n_nonzero == 0) return "every point is at zero field; nothing to fit";
+  return {};
+}
+
+// The sweep in fit form (checked points): |B|, Delta sigma in units of
+// e^2/(pi h), the weights, and for hln2d the per-sweep 1/|B| and -ln|B|.
+Data fit_form(std::span<const conductance::DeltaSigmaPoint> points,
+              std::span<const double> sigma_err_s, mc::Model model) {
+  Data all;
+  all.resize(points.size());
+  all.errors_known = !sigma_err_s.empty();
+  const bool hln_terms = model == mc::Model::hln2d;
+  for (std::size_t i = 0; i < points.size(); ++i) {
+    const double b = std::abs(points[i].field_t);
+    all.field_t[i] = b;
+    all.y[i] = points[i].delta_sigma_s / kWl;
+    all.weight[i] = sigma_err_s.empty() ? 1.0 : kWl / sigma_err_s[i];
+    all.inverse_field[i] = hln_terms ? 1.0 / b : 0.0;  // +infinity at B = 0
+    all.ln_inverse_field[i] = hln_terms ? (b > 0.0 ? -std::log(b) : kInf) : 0.0;
+  }
+  return all;
+}
+
+Shape shape_of(const SweepFitOptions& options) {
+  Shape shape;
+  shape.model = options.model;
+  shape.wire_spin_orbit = options.wire_spin_orbit;
+  shape.width_m = options.geometry.width_m;
+  shape.thickness_m = options.geometry.thickness_m;
+  return shape;
+}
+
+// The fields the window rules compare with.
+struct FieldScales {
+  double max_field = 0.0;          // the largest |B|
+  double field_step = 0.0;         // the mean field step: the finest scale resolved
+  double transport_field = kInf;   // B_tr = hbar/(2 e l^2); +infinity when l is unknown
+  double cap = 0.0;                // the widest automatic window
+  double min_window = 0.0;         // holds the kMinWindowPoints lowest fields
+  // The automatic window for a characteristic field: capped, and never so
+  // small that a tiny B_c empties it.
+  double window_for(double field) const { return std::max(std::min(field, cap), min_window); }
+};
+
+FieldScales field_scales(const Data& all, const SweepFitOptions& options, const Shape& shape) {
+  FieldScales s;
+  std::size_t n_nonzero = 0;
+  for (double b : all.field_t) {
+    s.max_field = std::max(s.max_field, b);
+    if (b > 0.0) ++n_nonzero;
+  }
+  s.field_step = s.max_field / static_cast<double>(n_nonzero);
+  s.cap = s.max_field;
+  const double mfp = options.geometry.mean_free_path_m;
+  if (mfp > 0.0) s.transport_field = kHbar / (2.0 * kE * mfp * mfp);
+  if (mfp > 0.0) s.cap = std::min(s.cap, options.transport_cap * s.transport_field);
+  if (options.model == mc::Model::wire1d)
+    s.cap = std::min(s.cap, kHbar / (kE * shape.width_m * shape.width_m));
+  std::vector<double> lowest = all.field_t;
+  const auto kth =
+      lowest.begin() + static_cast<long>(std::min(lowest.size(), kMinWindowPoints) - 1);
+  std::nth_element(lowest.begin(), kth, lowest.end());
+  s.min_window = *kth;
+  return s;
+}
+
+// Where the window search ended: the window, its points, the layout (alpha
+// free or held), the parameters, and the residuals and Jacobian at them.
+struct Solution {
+  double window = 0.0;
+  std::vector<std::size_t> index;  // of the points inside the window
+  Data data;
+  Layout layout;
+  std::vector<double> theta;
+  std::vector<double> residuals, jacobian_columns;  // n and n x p, column-major
+  PassResult pass;                                  // the last LM pass
+  int iterations = 0;                               // all passes
+  Values values() const { return unpack(layout, theta.data()); }
+};
+
+// The adaptive window: LM passes, each followed by a move of the window to
+// window_factor * B_c of the parameters found, until it settles (moves by
+// less than kWindowSettle, relative, with the alpha decision unchanged) or
+// after kMaxWindowPasses passes. A window given in the options stays put.
+class WindowSearch {
+ public:
+  WindowSearch(const Data& all, const Shape& shape, const SweepFitOptions& options,
+               const FieldScales& scales)
+      : all_(all), shape_(shape), options_(options), scales_(scales),
+        alpha_can_be_free_(alpha_may_be_free(options)),
+        alpha_hold_(options.alpha_fixed.value_or(options.alpha_default)) {
+    s_.window = options.window_t ? *options.window_t : scales.window_for(scales.cap);
+    s_.index = window_points(all.field_t, s_.window);
+    s_.data = select(all, s_.index);
+  }
+
+  bool enough_points() const {
+    return s_.data.size() >= static_cast<std::size_t>(layout_for(alpha_can_be_free_).size) + 1;
+  }
+  std::string too_few_points() const {
+    return "only " + std::to_string(s_.data.size()) + " points inside the field window of " +
+           std::to_string(s_.window) + " T; too few to fit";
+  }
+
+  // Start values from the grid over the whole (capped) range, alpha free if
+  // it may be; if the window then turns out too short for a free alpha, start
+  // again with it held. Then the first move of the window.
+  void start() {
+    s_.layout = layout_for(alpha_can_be_free_);
+    s_.theta = grid_start(shape_, s_.layout, s_.data, scales_.field_step, s_.window);
+    if (alpha_can_be_free_ && !alpha_free_at(s_.window, s_.values())) {
+      s_.layout = layout_for(false);
+      s_.theta = grid_start(shape_, s_.layout, s_.data, scales_.field_step, s_.window);
+    }
+    if (!options_.window_t && !settled(next_window())) move_to(next_window());
+  }
+
+  Solution solve() && {
+    for (int round = 0; round < kMaxWindowPasses; ++round) {
+      s_.pass = levenberg_marquardt(shape_, s_.layout, s_.data,
+                                    length_bounds(shape_, scales_.field_step, s_.window),
+                                    options_.max_iterations, s_.theta, s_.residuals,
+                                    s_.jacobian_columns);
+      s_.iterations += s_.pass.iterations;
+      if (options_.window_t) break;
+      const double next = next_window();
+      if (settled(next) || round + 1 == kMaxWindowPasses || !move_to(next)) break;
+    }
+    return std::move(s_);
+  }
+
+ private:
+  Layout layout_for(bool alpha_free) const {
+    return make_layout(shape_, alpha_free, alpha_hold_, options_.fit_offset,
+                       options_.fit_background);
+  }
+  bool alpha_free_at(double window, const Values& v) const {
+    return alpha_can_be_free_ &&
+           window >= options_.alpha_free_min_ratio * mc::characteristic_field_t(v.lphi_m);
+  }
+  double next_window() const {
+    return scales_.window_for(options_.window_factor * characteristic_field(shape_, s_.values()));
+  }
+  bool settled(double next) const {
+    const bool alpha_same =
+        alpha_free_at(next, s_.values()) == (s_.layout.alpha >= 0) || !alpha_can_be_free_;
+    return std::abs(next - s_.window) <= kWindowSettle * s_.window && alpha_same;
+  }
+  // Moves the window to `next` (new points, alpha decided afresh, linear
+  // parameters re-solved when anything changed). Returns false when it would
+  // leave too few points to fit.
+  bool move_to(double next) {
+    std::vector<std::size_t> next_index = window_points(all_.field_t, next);
+    if (next_index.size() < static_cast<std::size_t>(layout_for(false).size) + 1) return false;
+    const bool new_points = next_index.size() != s_.index.size();
+    s_.window = next;
+    if (new_points) {
+      s_.index = std::move(next_index);
+      s_.data = select(all_, s_.index);
+    }
+    const Layout wanted = layout_for(alpha_free_at(s_.window, s_.values()));
+    if (new_points || !(wanted == s_.layout)) {
+      s_.theta = relayout(shape_, s_.layout, wanted, s_.data, s_.theta);
+      s_.layout = wanted;
+    }
+    return true;
+  }
+
+  const Data& all_;
+  const Shape& shape_;
+  const SweepFitOptions& options_;
+  const FieldScales& scales_;
+  const bool alpha_can_be_free_;
+  const double alpha_hold_;
+  Solution s_;
+};
+
+// Chi-square and the covariance from the analytic Jacobian at the solution,
+// scaled by chi2_red when the point errors are unknown.
+struct Covariance {
+  double chi2 = 0.0, chi2_red = kInf;
+  Eigen::MatrixXd matrix;  // +infinity everywhere when singular
+  bool singular = true;
+  double sd(int k) const { return std::sqrt(matrix(k, k)); }
+  double corr(int a, int b) const {
+    return singular ? std::numeric_limits<double>::quiet_NaN()
+                    : matrix(a, b) / std::sqrt(matrix(a, a) * matrix(b, b));
+  }
+};
+
+Covariance covariance_at(const Solution& s) {
+  Covariance c;
+  const std::size_t n = s.data.size();
+  const std::size_t p = static_cast<std::size_t>(s.layout.size);
+  const Eigen::Map<const Eigen::MatrixXd> jacobian(s.jacobian_columns.data(), static_cast<long>(n),
+                                                   static_cast<long>(p));
+  for (double r : s.residuals) c.chi2 += r * r;
+  const double dof = static_cast<double>(n) - static_cast<double>(p);
+  c.chi2_red = dof > 0 ? c.chi2 / dof : kInf;
+  // J^T J column by column: p^2 dot products of length n, no general matrix
+  // product (whose blocking and temporaries cost more than the sums here).
+  Eigen::MatrixXd jtj(static_cast<long>(p), static_cast<long>(p));
+  for (long a = 0; a < static_cast<long>(p); ++a)
+    for (long b = 0; b <= a; ++b) jtj(a, b) = jtj(b, a) = jacobian.col(a).dot(jacobian.col(b));
+  const Eigen::VectorXd scale = jtj.diagonal().cwiseSqrt().cwiseInverse();
+  c.matrix = Eigen::MatrixXd::Constant(static_cast<long>(p), static_cast<long>(p), kInf);
+  if (!scale.allFinite()) return c;
+  const Eigen::MatrixXd normalized = scale.asDiagonal() * jtj * scale.asDiagonal();
+  Eigen::LLT<Eigen::MatrixXd> llt(normalized);
+  const Eigen::VectorXd eigen = normalized.selfadjointView<Eigen::Lower>().eigenvalues();
+  if (llt.info() != Eigen::Success || !(eigen.minCoeff() > 1e-13 * eigen.maxCoeff())) return c;
+  c.singular = false;
+  c.matrix = scale.asDiagonal() *
+             llt.solve(Eigen::MatrixXd::Identity(static_cast<long>(p), static_cast<long>(p))) *
+             scale.asDiagonal();
+  if (!s.data.errors_known) c.matrix *= c.chi2_red;
+  return c;
+}
+
+// The fitted parameters in SI units with their errors, and the fit's summary.
+void report(SweepFitResult& result, const Solution& s, const Covariance& c,
+            const FieldScales& scales) {
+  const Layout& layout = s.layout;
+  const Values v = s.values();
+  result.ok = true;
+  result.lphi_m = v.lphi_m;
+  result.lphi_err_m = v.lphi_m * c.sd(layout.ln_lphi);
+  if (result.model == mc::Model::hln2d) {
+    result.alpha = v.alpha;
+    result.alpha_err = layout.alpha >= 0 ? c.sd(layout.alpha) : 0.0;
+    if (layout.alpha >= 0) result.corr_alpha_lphi = c.corr(layout.alpha, layout.ln_lphi);
+  }
+  if (layout.ln_lso >= 0) {
+    result.lso_m = v.lso_m;
+    result.lso_err_m = v.lso_m * c.sd(layout.ln_lso);
+    result.corr_lso_lphi = c.corr(layout.ln_lso, layout.ln_lphi);
+  }
+  if (layout.offset >= 0) {
+    result.offset_s = v.offset * kWl;
+    result.offset_err_s = c.sd(layout.offset) * kWl;
+  }
+  if (layout.background >= 0) {
+    result.background_s_per_t2 = v.background * kWl;
+    result.background_err_s_per_t2 = c.sd(layout.background) * kWl;
+  }
+  result.chi2 = c.chi2;
+  result.chi2_red = c.chi2_red;
+  result.n_points = s.data.size();
+  result.field_window_t = std::min(s.window, scales.max_field);
+  result.b_phi_t = mc::characteristic_field_t(v.lphi_m);
+  result.iterations = s.iterations;
+  result.converged = s.pass.converged;
+  result.termination = s.pass.termination;
+}
+
+bool dimensionality_mismatch(const SweepFitOptions& options, double lphi_m) {
+  const double t = options.geometry.thickness_m, w = options.geometry.width_m;
+  switch (options.model) {
+    case mc::Model::hln2d:
+    case mc::Model::hln2d_so:
+      return t > 0.0 && lphi_m < t;
+    case mc::Model::wire1d:
+      return lphi_m < w || (t > 0.0 && lphi_m < t);
+    case mc::Model::kawabata3d:
+      return lphi_m > kThreeDimensionalSlack * t;
+  }
+  return false;
+}
+
+// The quality flags of a reported fit (thresholds in the header).
+void add_quality_flags(SweepFitResult& result, const Solution& s, const Covariance& c,
+                       const Shape& shape, const SweepFitOptions& options,
+                       const FieldScales& scales) {
+  const Layout& layout = s.layout;
+  const Values v = s.values();
+  const double b_c = characteristic_field(shape, v);
+  if (result.field_window_t < kNarrowWindowRatio * b_c) add_flag(result, Flag::window_too_narrow);
+  if (alpha_may_be_free(options) && layout.alpha < 0) add_flag(result, Flag::alpha_held);
+  if (c.singular ||
+      (layout.alpha >= 0 && std::abs(result.corr_alpha_lphi) > kDegenerateCorrelation))
+    add_flag(result, Flag::alpha_lphi_degenerate);
+  if (!s.pass.converged) add_flag(result, Flag::not_converged);
+  const double mfp = options.geometry.mean_free_path_m;
+  if (mfp > 0.0 && (result.field_window_t > scales.transport_field || v.lphi_m < mfp))
+    add_flag(result, Flag::outside_diffusive);
+  if (dimensionality_mismatch(options, v.lphi_m)) add_flag(result, Flag::dimensionality_mismatch);
+  const std::size_t p = static_cast<std::size_t>(layout.size);
+  if (s.data.size() < std::max<std::size_t>(kMinWindowPoints, 3 * p))
+    add_flag(result, Flag::too_few_points);
+  const Bounds bounds = length_bounds(shape, scales.field_step, s.window);
+  for (int k : {layout.ln_lphi, layout.ln_lso}) {
+    if (k < 0) continue;
+    const double ln_length = s.theta[static_cast<std::size_t>(k)];
+    const bool at_bound = ln_length <= bounds.ln_lower || ln_length >= bounds.ln_upper;
+    const bool unresolved =
+        shape.field_of_length(std::exp(ln_length)) < kResolvedStepFraction * scales.field_step;
+    if (at_bound || unresolved) add_flag(result, Flag::parameter_at_limit);
+  }
+}
+
+SweepFitResult failed(SweepFitResult result, std::string message) {
+  result.ok = false;
+  result.error = std::move(message);
+  return result;
+}
+
 }  // namespace
 
 std::string_view flag_name(Flag f) {
@@ -401,244 +509,24 @@ SweepFitResult fit_sweep(std::span<const conductance::DeltaSigmaPoint> points,
                          const SweepFitOptions& options, std::span<const double> sigma_err_s) {
   SweepFitResult result;
   result.model = options.model;
-  auto fail = [&result](std::string message) {
-    result.ok = false;
-    result.error = std::move(message);
-    return result;
-  };
+  if (std::string problem = check_options(options); !problem.empty())
+    return failed(std::move(result), std::move(problem));
+  if (std::string problem = check_points(points, sigma_err_s); !problem.empty())
+    return failed(std::move(result), std::move(problem));
 
-  if (std::string problem = check_options(options); !problem.empty()) return fail(problem);
-  if (points.empty()) return fail("the sweep has no points");
-  if (!sigma_err_s.empty() && sigma_err_s.size() != points.size())
-    return fail("sigma_err_s has " + std::to_string(sigma_err_s.size()) + " entries for " +
-                std::to_string(points.size()) + " points");
-
-  Data all;
-  all.resize(points.size());
-  all.errors_known = !sigma_err_s.empty();
-  const bool hln_terms = options.model == mc::Model::hln2d;
-  double max_field = 0.0;
-  std::size_t n_nonzero = 0;
-  for (std::size_t i = 0; i < points.size(); ++i) {
-    const double b = std::abs(points[i].field_t);
-    if (!std::isfinite(b)) return fail("point " + std::to_string(i) + " has a non-finite field");
-    if (!std::isfinite(points[i].delta_sigma_s))
-      return fail("point " + std::to_string(i) + " has a non-finite conductance");
-    double weight = 1.0;
-    if (!sigma_err_s.empty()) {
-      if (!positive_finite(sigma_err_s[i]))
-        return fail("point " + std::to_string(i) + " has an error that is not finite and > 0");
-      weight = kWl / sigma_err_s[i];
-    }
-    all.field_t[i] = b;
-    all.y[i] = points[i].delta_sigma_s / kWl;
-    all.weight[i] = weight;
-    all.inverse_field[i] = hln_terms ? 1.0 / b : 0.0;  // +infinity at B = 0
-    all.ln_inverse_field[i] = hln_terms ? (b > 0.0 ? -std::log(b) : kInf) : 0.0;
-    max_field = std::max(max_field, b);
-    if (b > 0.0) ++n_nonzero;
-  }
-  if (n_nonzero == 0) return fail("every point is at zero field; nothing to fit");
-
-  Shape shape;
-  shape.model = options.model;
-  shape.wire_spin_orbit = options.wire_spin_orbit;
-  shape.width_m = options.geometry.width_m;
-  shape.thickness_m = options.geometry.thickness_m;
-
-  // The mean field step: the finest field scale the sweep resolves.
-  const double field_step = max_field / static_cast<double>(n_nonzero);
-  double cap = max_field;
-  const double mfp = options.geometry.mean_free_path_m;
-  const double transport_field = mfp > 0.0 ? kHbar / (2.0 * kE * mfp * mfp) : kInf;
-  if (mfp > 0.0) cap = std::min(cap, options.transport_cap * transport_field);
-  if (options.model == mc::Model::wire1d)
-    cap = std::min(cap, kHbar / (kE * shape.width_m * shape.width_m));
-
-  // The window always holds the kMinWindowPoints lowest fields when the data
-  // have them, so that a tiny B_c cannot empty it.
-  std::vector<double> lowest = all.field_t;
-  const auto kth =
-      lowest.begin() + static_cast<long>(std::min(lowest.size(), kMinWindowPoints) - 1);
-  std::nth_element(lowest.begin(), kth, lowest.end());
-  const double min_window = *kth;
-  auto auto_window = [&](double field) { return std::max(std::min(field, cap), min_window); };
-
-  const bool alpha_can_be_free = options.model == mc::Model::hln2d && !options.alpha_fixed;
-  const double alpha_hold = options.alpha_fixed.value_or(options.alpha_default);
-  auto layout_for = [&](bool alpha_free) {
-    return make_layout(shape, alpha_free, alpha_hold, options.fit_offset, options.fit_background);
-  };
-  auto alpha_free_at = [&](double window, const Values& v) {
-    return alpha_can_be_free &&
-           window >= options.alpha_free_min_ratio * mc::characteristic_field_t(v.lphi_m);
-  };
-
-  double window = options.window_t ? *options.window_t : auto_window(cap);
-  std::vector<std::size_t> index = window_points(all.field_t, window);
-  Data data = select(all, index);
-  if (data.size() < static_cast<std::size_t>(layout_for(alpha_can_be_free).size) + 1) {
+  const Data all = fit_form(points, sigma_err_s, options.model);
+  const Shape shape = shape_of(options);
+  const FieldScales scales = field_scales(all, options, shape);
+  WindowSearch search(all, shape, options, scales);
+  if (!search.enough_points()) {
     add_flag(result, Flag::too_few_points);
-    return fail("only " + std::to_string(data.size()) + " points inside the field window of " +
-                std::to_string(window) + " T; too few to fit");
+    return failed(std::move(result), search.too_few_points());
   }
-
-  // Start values from the grid over the whole (capped) range, alpha free if
-  // it may be; if the window then turns out too short for a free alpha, start
-  // again with it held.
-  Layout layout = layout_for(alpha_can_be_free);
-  std::vector<double> theta = grid_start(shape, layout, data, field_step, window);
-  if (alpha_can_be_free && !alpha_free_at(window, unpack(layout, theta.data()))) {
-    layout = layout_for(false);
-    theta = grid_start(shape, layout, data, field_step, window);
-  }
-
-  // Moves the window to `next` (new points, alpha decided afresh, linear
-  // parameters re-solved when anything changed). Returns false when it would
-  // leave too few points to fit.
-  auto move_window = [&](double next) {
-    std::vector<std::size_t> next_index = window_points(all.field_t, next);
-    if (next_index.size() < static_cast<std::size_t>(layout_for(false).size) + 1) return false;
-    const bool new_points = next_index.size() != index.size();
-    window = next;
-    if (new_points) {
-      index = std::move(next_index);
-      data = select(all, index);
-    }
-    const Layout wanted = layout_for(alpha_free_at(window, unpack(layout, theta.data())));
-    if (new_points || !(wanted == layout)) {
-      theta = relayout(shape, layout, wanted, data, theta);
-      layout = wanted;
-    }
-    return true;
-  };
-  // The window settles when it moves by less than kWindowSettle (relative)
-  // and the alpha decision stays the same.
-  auto settled = [&](double next) {
-    const bool alpha_same =
-        alpha_free_at(next, unpack(layout, theta.data())) == (layout.alpha >= 0) ||
-        !alpha_can_be_free;
-    return std::abs(next - window) <= kWindowSettle * window && alpha_same;
-  };
-  auto next_window = [&] {
-    return auto_window(options.window_factor *
-                       characteristic_field(shape, unpack(layout, theta.data())));
-  };
-  if (!options.window_t && !settled(next_window())) move_window(next_window());
-
-  PassResult pass;
-  int total_iterations = 0;
-  std::vector<double> residuals, jacobian_columns;
-  for (int round = 0; round < kMaxWindowPasses; ++round) {
-    pass = levenberg_marquardt(shape, layout, data, length_bounds(shape, field_step, window),
-                               options.max_iterations, theta, residuals, jacobian_columns);
-    total_iterations += pass.iterations;
-    if (options.window_t) break;
-    const double next = next_window();
-    if (settled(next) || round + 1 == kMaxWindowPasses || !move_window(next)) break;
-  }
-
-  // Covariance from the analytic Jacobian at the solution.
-  const std::size_t n = data.size();
-  const std::size_t p = static_cast<std::size_t>(layout.size);
-  const Eigen::Map<const Eigen::MatrixXd> jacobian(jacobian_columns.data(), static_cast<long>(n),
-                                                   static_cast<long>(p));
-  double chi2 = 0.0;
-  for (double r : residuals) chi2 += r * r;
-  const double dof = static_cast<double>(n) - static_cast<double>(p);
-  const double chi2_red = dof > 0 ? chi2 / dof : kInf;
-  // J^T J column by column: p^2 dot products of length n, no general matrix
-  // product (whose blocking and temporaries cost more than the sums here).
-  Eigen::MatrixXd jtj(static_cast<long>(p), static_cast<long>(p));
-  for (long a = 0; a < static_cast<long>(p); ++a)
-    for (long b = 0; b <= a; ++b) jtj(a, b) = jtj(b, a) = jacobian.col(a).dot(jacobian.col(b));
-  const Eigen::VectorXd scale = jtj.diagonal().cwiseSqrt().cwiseInverse();
-  Eigen::MatrixXd covariance =
-      Eigen::MatrixXd::Constant(static_cast<long>(p), static_cast<long>(p), kInf);
-  bool singular = true;
-  if (scale.allFinite()) {
-    const Eigen::MatrixXd normalized = scale.asDiagonal() * jtj * scale.asDiagonal();
-    Eigen::LLT<Eigen::MatrixXd> llt(normalized);
-    const Eigen::VectorXd eigen = normalized.selfadjointView<Eigen::Lower>().eigenvalues();
-    if (llt.info() == Eigen::Success && eigen.minCoeff() > 1e-13 * eigen.maxCoeff()) {
-      singular = false;
-      covariance =
-          scale.asDiagonal() *
-          llt.solve(Eigen::MatrixXd::Identity(static_cast<long>(p), static_cast<long>(p))) *
-          scale.asDiagonal();
-      if (sigma_err_s.empty()) covariance *= chi2_red;
-    }
-  }
-  auto sd = [&](int k) { return std::sqrt(covariance(k, k)); };
-  auto corr = [&](int a, int b) {
-    return singular ? std::numeric_limits<double>::quiet_NaN()
-                    : covariance(a, b) / std::sqrt(covariance(a, a) * covariance(b, b));
-  };
-
-  const Values v = unpack(layout, theta.data());
-  result.ok = true;
-  result.lphi_m = v.lphi_m;
-  result.lphi_err_m = v.lphi_m * sd(layout.ln_lphi);
-  if (options.model == mc::Model::hln2d) {
-    result.alpha = v.alpha;
-    result.alpha_err = layout.alpha >= 0 ? sd(layout.alpha) : 0.0;
-    if (layout.alpha >= 0) result.corr_alpha_lphi = corr(layout.alpha, layout.ln_lphi);
-  }
-  if (layout.ln_lso >= 0) {
-    result.lso_m = v.lso_m;
-    result.lso_err_m = v.lso_m * sd(layout.ln_lso);
-    result.corr_lso_lphi = corr(layout.ln_lso, layout.ln_lphi);
-  }
-  if (layout.offset >= 0) {
-    result.offset_s = v.offset * kWl;
-    result.offset_err_s = sd(layout.offset) * kWl;
-  }
-  if (layout.background >= 0) {
-    result.background_s_per_t2 = v.background * kWl;
-    result.background_err_s_per_t2 = sd(layout.background) * kWl;
-  }
-  result.chi2 = chi2;
-  result.chi2_red = chi2_red;
-  result.n_points = n;
-  result.field_window_t = std::min(window, max_field);
-  result.b_phi_t = mc::characteristic_field_t(v.lphi_m);
-  result.iterations = total_iterations;
-  result.converged = pass.converged;
-  result.termination = pass.termination;
-
-  // Quality flags (thresholds in the header).
-  const double b_c = characteristic_field(shape, v);
-  if (result.field_window_t < kNarrowWindowRatio * b_c) add_flag(result, Flag::window_too_narrow);
-  if (alpha_can_be_free && layout.alpha < 0) add_flag(result, Flag::alpha_held);
-  if (singular || (layout.alpha >= 0 && std::abs(result.corr_alpha_lphi) > kDegenerateCorrelation))
-    add_flag(result, Flag::alpha_lphi_degenerate);
-  if (!pass.converged) add_flag(result, Flag::not_converged);
-  if (mfp > 0.0 && (result.field_window_t > transport_field || v.lphi_m < mfp))
-    add_flag(result, Flag::outside_diffusive);
-  const double t = options.geometry.thickness_m, w = options.geometry.width_m;
-  switch (options.model) {
-    case mc::Model::hln2d:
-    case mc::Model::hln2d_so:
-      if (t > 0.0 && v.lphi_m < t) add_flag(result, Flag::dimensionality_mismatch);
-      break;
-    case mc::Model::wire1d:
-      if (v.lphi_m < w || (t > 0.0 && v.lphi_m < t))
-        add_flag(result, Flag::dimensionality_mismatch);
-      break;
-    case mc::Model::kawabata3d:
-      if (v.lphi_m > kThreeDimensionalSlack * t) add_flag(result, Flag::dimensionality_mismatch);
-      break;
-  }
-  if (n < std::max<std::size_t>(kMinWindowPoints, 3 * p)) add_flag(result, Flag::too_few_points);
-  const Bounds bounds = length_bounds(shape, field_step, window);
-  for (int k : {layout.ln_lphi, layout.ln_lso}) {
-    if (k < 0) continue;
-    const double ln_length = theta[static_cast<std::size_t>(k)];
-    const bool at_bound = ln_length <= bounds.ln_lower || ln_length >= bounds.ln_upper;
-    const bool unresolved =
-        shape.field_of_length(std::exp(ln_length)) < kResolvedStepFraction * field_step;
-    if (at_bound || unresolved) add_flag(result, Flag::parameter_at_limit);
-  }
+  search.start();
+  const Solution solution = std::move(search).solve();
+  const Covariance covariance = covariance_at(solution);
+  report(result, solution, covariance, scales);
+  add_quality_flags(result, solution, covariance, shape, options, scales);
   return result;
 }
 
