@@ -2,10 +2,11 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstdio>
 #include <limits>
 #include <string>
 #include <vector>
+
+#include <fmt/format.h>
 
 namespace lphi::conductance {
 namespace {
@@ -20,11 +21,7 @@ struct SymmetrizedPoint {
   double readings;
 };
 
-std::string format_field(double field_t) {
-  char buf[48];
-  std::snprintf(buf, sizeof buf, "%.6g T", field_t);
-  return buf;
-}
+std::string format_field(double field_t) { return fmt::format("{:.6g} T", field_t); }
 
 // Cubic (four-point Lagrange) interpolation of the sorted curve (field,
 // value) at `field_t`, which must lie inside [front, back]: through the two

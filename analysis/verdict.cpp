@@ -2,7 +2,8 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstdio>
+
+#include <fmt/format.h>
 
 #include "analysis/constants.hpp"
 
@@ -10,17 +11,9 @@ namespace lphi::verdict {
 
 namespace {
 
-std::string format_k(double t_k) {
-  char buf[32];
-  std::snprintf(buf, sizeof buf, "%.4g K", t_k);
-  return buf;
-}
+std::string format_k(double t_k) { return fmt::format("{:.4g} K", t_k); }
 
-std::string format_g(double v) {
-  char buf[32];
-  std::snprintf(buf, sizeof buf, "%.3g", v);
-  return buf;
-}
+std::string format_g(double v) { return fmt::format("{:.3g}", v); }
 
 }  // namespace
 

@@ -9,8 +9,9 @@
 #include <algorithm>
 #include <array>
 #include <cmath>
-#include <cstdio>
 #include <vector>
+
+#include <fmt/format.h>
 
 #include "analysis/internal/sweep_fit_function.hpp"
 
@@ -176,38 +177,34 @@ PassResult tiny_solve(Evaluations& evaluations, bool errors_known, int max_itera
   chi2 = sum_of_squares(residuals.data(), n);
 
   r.converged = std::isfinite(chi2);
-  char message[160];
   switch (status) {
     case Solver::COST_CHANGE_TOO_SMALL:
-      std::snprintf(message, sizeof message,
-                    "function tolerance reached: |chi2 change| < %.0e of chi2 %.6g",
-                    kFunctionTolerance, chi2);
+      r.termination =
+          fmt::format("function tolerance reached: |chi2 change| < {:.0e} of chi2 {:.6g}",
+                      kFunctionTolerance, chi2);
       break;
     case Solver::RELATIVE_STEP_SIZE_TOO_SMALL:
-      std::snprintf(message, sizeof message, "parameter tolerance reached: |step| < %.0e |x|",
-                    kParameterTolerance);
+      r.termination =
+          fmt::format("parameter tolerance reached: |step| < {:.0e} |x|", kParameterTolerance);
       break;
     case Solver::GRADIENT_TOO_SMALL:
       if (function.stopped_at_gauss_newton_tolerance())
-        std::snprintf(message, sizeof message,
-                      "Gauss-Newton step left below %.0e standard errors", kGaussNewtonStepTolerance);
+        r.termination = fmt::format("Gauss-Newton step left below {:.0e} standard errors",
+                                    kGaussNewtonStepTolerance);
       else
-        std::snprintf(message, sizeof message,
-                      "gradient tolerance reached: max |scaled gradient| < %.0e",
-                      kGradientTolerance);
+        r.termination = fmt::format("gradient tolerance reached: max |scaled gradient| < {:.0e}",
+                                    kGradientTolerance);
       break;
     case Solver::COST_TOO_SMALL:
-      std::snprintf(message, sizeof message, "chi2 %.3g is zero to double precision", chi2);
+      r.termination = fmt::format("chi2 {:.3g} is zero to double precision", chi2);
       break;
     case Solver::HIT_MAX_ITERATIONS:
     default:
       r.converged = false;
-      std::snprintf(message, sizeof message, "maximum number of iterations (%d) reached",
-                    max_iterations);
+      r.termination = fmt::format("maximum number of iterations ({}) reached", max_iterations);
       break;
   }
-  if (!std::isfinite(chi2)) std::snprintf(message, sizeof message, "chi2 is not finite");
-  r.termination = message;
+  if (!std::isfinite(chi2)) r.termination = "chi2 is not finite";
   return r;
 }
 
