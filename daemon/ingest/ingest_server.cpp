@@ -62,8 +62,7 @@ constexpr int hard_max_message_bytes = 256 << 20;
 
 IngestServer::IngestServer(zmq::context_t& context, const IngestOptions& options,
                            store::StoreWriter& writer)
-    : context_(context),
-      options_(options),
+    : options_(options),
       writer_(writer),
       ingest_(context, zmq::socket_type::router),
       control_(context, zmq::socket_type::router) {}

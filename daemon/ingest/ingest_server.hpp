@@ -155,7 +155,6 @@ class IngestServer {
   void reply(zmq::socket_t& socket, const Peer& peer, const nlohmann::json& message);
   nlohmann::json status() const;
 
-  zmq::context_t& context_;
   IngestOptions options_;
   store::StoreWriter& writer_;
   zmq::socket_t ingest_;

@@ -380,9 +380,7 @@ void SamplePipeline::fit_and_record(std::vector<const segment::Sweep*> sweeps, P
   out.fits.push_back(rec);
   update_zero_field(rec, out);
   if (!rec.from_store || stored_.empty()) {
-    VerdictRecord v = assess(rec);
-    out.verdicts.push_back(v);
-    last_verdict_ = std::move(v);
+    out.verdicts.push_back(assess(rec));
   }
 }
 

@@ -216,15 +216,9 @@ class SamplePipeline {
   void finish(PipelineOutput& out);
 
   const std::string& error() const { return error_; }
-  const align::AlignmentCounts& alignment_counts() const { return aligner_.counts(); }
-  const segment::SegmentCounts& segment_counts() const { return segmenter_.counts(); }
   std::size_t sweeps_seen() const { return sweeps_seen_; }
-  // The cooldown of the latest sweep segmented (0 before the first).
-  std::int64_t cooldown() const { return cooldown_; }
   std::size_t fits_done() const { return fits_.size(); }
   std::size_t fits_reused() const { return fits_reused_; }
-  const std::vector<FitRecord>& fits() const { return fits_; }
-  const std::optional<VerdictRecord>& last_verdict() const { return last_verdict_; }
 
  private:
   void take(std::vector<align::AlignedPoint>& points);
@@ -254,7 +248,6 @@ class SamplePipeline {
     std::int64_t cooldown = 1;
   };
   std::map<std::int64_t, PlateauSigma> zero_field_;
-  std::optional<VerdictRecord> last_verdict_;
   // Cooldowns: warm-ups not yet passed by a sweep's start (event times,
   // bounded by max_warmups), whether the sample has been below half the
   // threshold since the last one, and each queued sweep's cooldown.
