@@ -18,6 +18,11 @@
 #include "daemon/alerts/event_publisher.hpp"
 #include "daemon/config/config.hpp"
 #include "daemon/config/data_dir.hpp"
+#include "daemon/control/analysis_queries.hpp"
+#include "daemon/control/control_server.hpp"
+#include "daemon/health/failed_parts.hpp"
+#include "daemon/health/health_monitor.hpp"
+#include "daemon/health/status_reply.hpp"
 #include "daemon/ingest/driver_host.hpp"
 #include "daemon/ingest/ingest_server.hpp"
 #include "daemon/live/live_analysis.hpp"
@@ -157,9 +162,8 @@ int serve(const std::string& dir_option, const std::string& config_option, const
     writer->stop();
     return 1;
   }
-  if (drivers.size() > 0) server->set_driver_status([&drivers] { return drivers.status_json(); });
 
-  // The event socket, the alert engine and the live analysis.
+  // The event socket, the alert engine, the live analysis, health and control.
   auto fail = [&](const std::string& message) {
     spdlog::critical("{}", message);
     std::cerr << "lphid: " << message << "\n";
@@ -180,38 +184,79 @@ int serve(const std::string& dir_option, const std::string& config_option, const
       !s) {
     return fail(s.message());
   }
+  lphi::health::FailedParts failed_parts;
   lphi::live::LiveOptions lo;
   lo.data_dir = dir;
   lo.writer = writer.get();
+  lo.failed_parts = &failed_parts;
   std::unique_ptr<lphi::live::LiveAnalysis> live;
   if (auto s = lphi::live::LiveAnalysis::create(config, lo, engine.get(), events.get(), live); !s) {
     return fail(s.message());
   }
-  for (const auto& type : lphi::live::LiveAnalysis::request_types()) {
-    server->add_control_handler(type, [&live](const nlohmann::json& r) { return live->handle_request(r); });
+  std::unique_ptr<lphi::health::HealthMonitor> health;
+  if (auto s = lphi::health::HealthMonitor::create(dir, engine.get(), health); !s) return fail(s.message());
+  server->set_tick_handler([&health](const lphi::ingest::IngestStatus& status) { health->on_tick(status); });
+
+  std::unique_ptr<lphi::control::AnalysisQueries> queries;
+  if (auto s = lphi::control::AnalysisQueries::create(config, dir, *live, queries); !s) return fail(s.message());
+  std::unique_ptr<lphi::control::ControlServer> control;
+  if (auto s = lphi::control::ControlServer::create(context, io.endpoints.control, config.limits, control); !s) {
+    return fail(s.message());
+  }
+  control->add_handler("status", [&](const nlohmann::json&) {
+    lphi::health::DaemonStatus st;
+    st.ingest = server->status();
+    if (drivers.size() > 0) st.drivers = drivers.status_json();
+    st.failed_parts = failed_parts.list();
+    // The hook's thread belongs to the engine, which keeps its failure.
+    if (const auto c = engine->counters(); !c.hook_failed.empty()) {
+      st.failed_parts.push_back({"alert-hook", c.hook_failed, 0.0});
+    }
+    st.database_bytes = lphi::health::database_bytes(dir);
+    st.pid = ::getpid();
+    st.now_unix = std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
+    return lphi::health::status_reply(st);
+  });
+  for (const auto& type : lphi::control::AnalysisQueries::request_types()) {
+    control->add_handler(type, [&queries](const nlohmann::json& r) { return queries->handle_request(r); });
   }
   for (const char* type : {"alerts", "ack"}) {
-    server->add_control_handler(type, [&engine](const nlohmann::json& r) { return engine->handle_request(r); });
+    control->add_handler(type, [&engine](const nlohmann::json& r) { return engine->handle_request(r); });
   }
-  server->set_tick_handler([&live](const nlohmann::json& status) { live->on_health(status); });
 
   if (auto e = lphi::config::write_endpoints_file(dir, io.endpoints)) spdlog::warn("{}", *e);
   spdlog::info("lphid {} serving {} (ingest {}, control {}, events {}, {} sources, {} samples, {} drivers)",
                ::getpid(), dir, io.endpoints.ingest, io.endpoints.control, io.endpoints.events,
                sources.size(), config.samples.size(), drivers.size());
   live->start();
-  drivers.start();
+  drivers.start(&failed_parts);
+  control->start(&failed_parts);
   sd_notify(0, "READY=1");
-  server->run(stop_requested);
-  // The drivers stop before the server they hand readings to goes away; the
-  // analysis before the engine and the publisher it reports to.
+  // The ingest loop runs on this thread. If it throws, lphid cannot take
+  // readings any more: it is marked failed and lphid stops in order (the
+  // writer commits what it queued; senders resend what was not acknowledged)
+  // with a non-zero exit, for the service manager to restart it, rather than
+  // serving queries without ingesting.
+  const bool ingest_ok =
+      lphi::health::run_guarded(&failed_parts, "ingest", [&] { server->run(stop_requested); });
+  // Control first (its handlers use everything below); the drivers before the
+  // server they hand readings to goes away; the analysis before the engine
+  // and the publisher it reports to.
+  control.reset();
+  queries.reset();
   drivers.stop();
   live->stop();
   live.reset();
+  health.reset();
   engine.reset();
   events.reset();
   server.reset();
   writer.reset();
+  if (!ingest_ok) {
+    spdlog::critical("lphid stopped: its ingest failed");
+    spdlog::shutdown();
+    return 1;
+  }
   spdlog::info("lphid stopped");
   spdlog::shutdown();
   return 0;

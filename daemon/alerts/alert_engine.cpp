@@ -611,6 +611,7 @@ AlertEngine::Counters AlertEngine::counters() const {
     out.hook_timeouts = h.timeouts;
     out.hook_rate_limited = h.rate_limited;
     out.hook_queue_full = h.queue_full;
+    out.hook_failed = h.failed_error;
   }
   return out;
 }

@@ -139,6 +139,7 @@ class AlertEngine {
     std::uint64_t hook_timeouts = 0;   // killed after hook_timeout_s
     std::uint64_t hook_rate_limited = 0;  // dropped: more than hook_max_per_minute
     std::uint64_t hook_queue_full = 0;    // dropped: hook_queue changes already waiting
+    std::string hook_failed;              // non-empty: the hook's thread failed (hook_runner.hpp)
   };
 
   static Status create(const AlertConfig& config, const std::string& database_path,

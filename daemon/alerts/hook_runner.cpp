@@ -12,6 +12,8 @@
 
 #include <spdlog/spdlog.h>
 
+#include "daemon/health/failed_parts.hpp"
+
 extern char** environ;
 
 namespace lphi::alerts {
@@ -80,6 +82,11 @@ HookRunner::~HookRunner() {
 void HookRunner::submit(std::string input) {
   {
     std::lock_guard lock(mutex_);
+    if (!counters_.failed_error.empty()) {
+      ++counters_.failures;
+      spdlog::warn("alert hook: failed earlier ({}); this alert change is not passed on", counters_.failed_error);
+      return;
+    }
     const auto now = Clock::now();
     while (!accepted_.empty() && now - accepted_.front() >= std::chrono::minutes(1)) {
       accepted_.pop_front();
@@ -113,7 +120,27 @@ bool HookRunner::wait_idle(double timeout_s) {
                         [this] { return queue_.empty() && !busy_; });
 }
 
+// The thread's entry: the exception barrier around the loop.
 void HookRunner::run_loop() {
+  std::string error = "an exception that is not a std::exception";
+  const bool ok = health::run_guarded(nullptr, "alert-hook", [this, &error] {
+    try {
+      serve();
+    } catch (const std::exception& e) {
+      error = e.what();
+      throw;
+    }
+  });
+  if (ok) return;
+  std::lock_guard lock(mutex_);
+  ++counters_.failures;
+  counters_.failed_error = error;
+  queue_.clear();
+  busy_ = false;
+  idle_.notify_all();
+}
+
+void HookRunner::serve() {
   // A hook that exits before reading its stdin must not take lphid down
   // with SIGPIPE: this thread blocks the signal (writes then fail with EPIPE).
   sigset_t pipe_set;

@@ -8,6 +8,12 @@
 // max_per_minute in any 60 s window, or beyond the queue's capacity, is
 // dropped and counted.
 //
+// Failure: an exception that escapes a run is caught at the thread's entry
+// (health::run_guarded), logged and counted; the hook is then marked failed
+// (Counters::failed_error), its thread ends, and every later change is
+// dropped and counted as a failure. lphid goes on, and `lphi status` lists
+// the part "alert-hook".
+//
 // Thread safety: every public member may be called from any thread.
 #pragma once
 
@@ -31,6 +37,7 @@ class HookRunner {
     std::uint64_t timeouts = 0;   // stopped after timeout_s (also counted as failures)
     std::uint64_t rate_limited = 0;
     std::uint64_t queue_full = 0;
+    std::string failed_error;     // non-empty: the hook's thread failed with this
   };
 
   HookRunner(std::vector<std::string> argv, double timeout_s, std::int64_t max_per_minute,
@@ -47,6 +54,7 @@ class HookRunner {
 
  private:
   void run_loop();
+  void serve();
   void run_one(const std::string& input);
 
   const std::vector<std::string> argv_;

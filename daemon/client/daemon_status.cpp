@@ -50,6 +50,13 @@ void print_human(const json& s) {
                 value_or_dash(src.at("age_s"), 1).c_str(), fixed(src.value("rate_per_s", 0.0), 1).c_str(),
                 static_cast<unsigned long long>(src.value("accepted", std::uint64_t{0})));
   }
+  // Parts of lphid whose thread failed: they stopped, the rest goes on.
+  if (s.contains("failed_parts") && !s.at("failed_parts").empty()) {
+    std::printf("\n%-24s %s\n", "failed part", "error");
+    for (const auto& p : s.at("failed_parts")) {
+      std::printf("%-24s %s\n", p.value("part", "").c_str(), p.value("error", "").c_str());
+    }
+  }
   if (!s.contains("drivers") || s.at("drivers").empty()) return;
   // The instrument drivers lphid runs itself: is each instrument talking, and
   // if not, what went wrong.

@@ -4,6 +4,7 @@
 
 #include <chrono>
 
+#include "daemon/health/failed_parts.hpp"
 #include "drivers/instrument/line_stream_driver.hpp"
 #include "drivers/instrument/scpi_tcp_driver.hpp"
 
@@ -77,15 +78,12 @@ Status DriverHost::create(const config::Config& config,
   return Status::success();
 }
 
-void DriverHost::start() {
+void DriverHost::start(health::FailedParts* failed_parts) {
   if (thread_.joinable() || stopped_) return;
   for (auto& e : drivers_) e.driver->start();
-  thread_ = std::thread([this] {
-    try {
-      io_.run();
-    } catch (const std::exception& e) {
-      spdlog::critical("the instrument drivers' thread failed: {}", e.what());
-    }
+  // The thread's entry: the exception barrier around the io_context.
+  thread_ = std::thread([this, failed_parts] {
+    health::run_guarded(failed_parts, "drivers", [this] { io_.run(); });
   });
 }
 

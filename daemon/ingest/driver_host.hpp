@@ -27,6 +27,10 @@
 #include "daemon/store/writer.hpp"
 #include "drivers/instrument/instrument_driver.hpp"
 
+namespace lphi::health {
+class FailedParts;
+}  // namespace lphi::health
+
 namespace lphi::ingest {
 
 class DriverHost {
@@ -44,8 +48,11 @@ class DriverHost {
                        IngestServer& server);
   std::size_t size() const { return drivers_.size(); }
 
-  // Starts the drivers and their thread.
-  void start();
+  // Starts the drivers and their thread. An exception that escapes a
+  // driver's handler ends the io thread: it is recorded in failed_parts (may
+  // be null) as the part "drivers", every driver stops reading (their status
+  // keeps the last state), and lphid goes on with the other sources.
+  void start(health::FailedParts* failed_parts = nullptr);
   // Stops the drivers and joins the thread. Idempotent.
   void stop();
 

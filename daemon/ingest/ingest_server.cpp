@@ -2,7 +2,6 @@
 
 #include <spdlog/spdlog.h>
 #include <sys/eventfd.h>
-#include <sys/stat.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -10,7 +9,6 @@
 #include <cmath>
 #include <thread>
 
-#include "daemon/store/database.hpp"
 
 namespace lphi::ingest {
 
@@ -21,12 +19,6 @@ namespace {
 
 double unix_now() {
   return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
-}
-
-std::int64_t file_size(const std::string& path) {
-  struct stat st {};
-  if (::stat(path.c_str(), &st) != 0) return 0;
-  return static_cast<std::int64_t>(st.st_size);
 }
 
 // Warnings about refused input are limited so that a hostile sender cannot
@@ -64,8 +56,7 @@ IngestServer::IngestServer(zmq::context_t& context, const IngestOptions& options
                            store::StoreWriter& writer)
     : options_(options),
       writer_(writer),
-      ingest_(context, zmq::socket_type::router),
-      control_(context, zmq::socket_type::router) {}
+      ingest_(context, zmq::socket_type::router) {}
 
 IngestServer::~IngestServer() {
   if (wake_fd_ >= 0) ::close(wake_fd_);
@@ -96,21 +87,16 @@ Status IngestServer::create(zmq::context_t& context, const IngestOptions& option
   s->wake_fd_ = ::eventfd(0, EFD_NONBLOCK | EFD_CLOEXEC);
   if (s->wake_fd_ < 0) return Status::unavailable("cannot create an eventfd");
   try {
-    for (auto* socket : {&s->ingest_, &s->control_}) {
-      socket->set(zmq::sockopt::linger, 0);
-      socket->set(zmq::sockopt::rcvhwm, receive_high_water_mark);
-      socket->set(zmq::sockopt::maxmsgsize, std::int64_t{hard_max_message_bytes});
-    }
-    for (const auto& [socket, endpoint] :
-         {std::pair{&s->ingest_, options.endpoints.ingest},
-          std::pair{&s->control_, options.endpoints.control}}) {
-      if (auto e = config::prepare_ipc_endpoint(endpoint)) return Status::unavailable(*e);
-      socket->bind(endpoint);
-      if (auto e = config::restrict_ipc_endpoint(endpoint)) return Status::unavailable(*e);
-    }
+    s->ingest_.set(zmq::sockopt::linger, 0);
+    s->ingest_.set(zmq::sockopt::rcvhwm, receive_high_water_mark);
+    s->ingest_.set(zmq::sockopt::maxmsgsize, std::int64_t{hard_max_message_bytes});
+    if (auto e = config::prepare_ipc_endpoint(options.endpoints.ingest)) return Status::unavailable(*e);
+    s->ingest_.bind(options.endpoints.ingest);
+    if (auto e = config::restrict_ipc_endpoint(options.endpoints.ingest)) return Status::unavailable(*e);
   } catch (const zmq::error_t& e) {
-    return Status::unavailable(std::string("cannot bind the ingest/control sockets: ") + e.what());
+    return Status::unavailable(std::string("cannot bind the ingest socket: ") + e.what());
   }
+  s->publish_status();
   out = std::move(s);
   return Status::success();
 }
@@ -118,53 +104,68 @@ Status IngestServer::create(zmq::context_t& context, const IngestOptions& option
 void IngestServer::run(const std::atomic<bool>& stop) {
   double last_tick = 0.0;
   while (!stop.load()) {
-    zmq::pollitem_t items[] = {
-        {ingest_.handle(), 0, ZMQ_POLLIN, 0},
-        {control_.handle(), 0, ZMQ_POLLIN, 0},
-        {nullptr, wake_fd_, ZMQ_POLLIN, 0},
-    };
-    // While a batch waits for room in the writer's queue, the ingest socket
-    // is not read: that is the back-pressure.
-    if (held_) items[0].events = 0;
+    zmq::pollitem_t ingest_item{};
     try {
-      zmq::poll(items, 3, std::chrono::milliseconds(held_ ? 5 : 100));
+      ingest_item = poll_once();
     } catch (const zmq::error_t& e) {
       if (e.num() == EINTR) continue;
       spdlog::error("poll failed: {}", e.what());
       break;
     }
-    if (items[2].revents & ZMQ_POLLIN) {
-      std::uint64_t n = 0;
-      [[maybe_unused]] auto r = ::read(wake_fd_, &n, sizeof n);
-    }
-    drain_completions();
-    if (held_ && submit(*held_)) held_.reset();
-    if (!held_) drain_driver_inbox();
-    submit_identities();
-    // Bounded work per wake-up so the control socket and the acks stay responsive.
-    for (int i = 0; i < 64 && !held_ && (items[0].revents & ZMQ_POLLIN); ++i) {
-      if (!(ingest_.get(zmq::sockopt::events) & ZMQ_POLLIN)) break;
-      on_ingest_message();
-    }
-    for (int i = 0; i < 16 && (control_.get(zmq::sockopt::events) & ZMQ_POLLIN); ++i) {
-      on_control_message();
-    }
-    const double now = unix_now();
-    if (now - last_tick >= 1.0) {
-      last_tick = now;
-      for (auto& [name, s] : sources_) s->rate.sample(now, s->accepted);
-      if (tick_handler_) tick_handler_(status());
-    }
+    take_completions_and_offers();
+    read_ingest_socket(ingest_item);
+    publish_status();
+    tick(last_tick);
   }
   spdlog::info("stopping: writing what is queued");
   write_what_was_taken();
   writer_.stop();
   drain_completions();
+  publish_status();
 }
 
-bool IngestServer::driver_inbox_empty() {
-  std::lock_guard lock(inbox_mutex_);
-  return std::all_of(inbox_.begin(), inbox_.end(), [](const auto& slot) { return !slot.second; });
+// Waits for a message, a completion or a driver's offer. While a batch waits
+// for room in the writer's queue, the ingest socket is not read: that is the
+// back-pressure.
+zmq::pollitem_t IngestServer::poll_once() {
+  zmq::pollitem_t items[] = {
+      {ingest_.handle(), 0, ZMQ_POLLIN, 0},
+      {nullptr, wake_fd_, ZMQ_POLLIN, 0},
+  };
+  if (held_) items[0].events = 0;
+  zmq::poll(items, 2, std::chrono::milliseconds(held_ ? 5 : 100));
+  if (items[1].revents & ZMQ_POLLIN) {
+    std::uint64_t n = 0;
+    [[maybe_unused]] auto r = ::read(wake_fd_, &n, sizeof n);
+  }
+  return items[0];
+}
+
+// Acks what the writer committed, retries a held batch, takes the drivers'
+// hand-overs and identities.
+void IngestServer::take_completions_and_offers() {
+  drain_completions();
+  if (held_ && submit(*held_)) held_.reset();
+  if (!held_) drain_driver_inbox();
+  submit_identities();
+}
+
+// Bounded work per wake-up so that the acks stay responsive.
+void IngestServer::read_ingest_socket(const zmq::pollitem_t& item) {
+  for (int i = 0; i < 64 && !held_ && (item.revents & ZMQ_POLLIN); ++i) {
+    if (!(ingest_.get(zmq::sockopt::events) & ZMQ_POLLIN)) break;
+    on_ingest_message();
+  }
+}
+
+// About once a second: the sources' rates, and the tick handler (health).
+void IngestServer::tick(double& last_tick) {
+  const double now = unix_now();
+  if (now - last_tick < 1.0) return;
+  last_tick = now;
+  for (auto& [name, src] : sources_) src->rate.sample(now, src->accepted);
+  publish_status();
+  if (tick_handler_) tick_handler_(status());
 }
 
 // On stopping: a driver's hand-over that offer_driver_readings took (it
@@ -446,6 +447,7 @@ void IngestServer::refuse(const Peer& peer, std::optional<std::uint64_t> batch_i
 
 void IngestServer::reply(zmq::socket_t& socket, const Peer& peer, const json& message) {
   if (peer.internal) return;
+  publish_status();  // a sender that holds the reply finds it counted
   const std::string payload = protocol::encode_frame(message, peer.encoding);
   try {
     socket.send(zmq::buffer(peer.identity), zmq::send_flags::sndmore | zmq::send_flags::dontwait);
@@ -456,173 +458,42 @@ void IngestServer::reply(zmq::socket_t& socket, const Peer& peer, const json& me
   }
 }
 
-bool IngestServer::offer_driver_readings(const std::string& source, protocol::Readings&& readings) {
-  {
-    std::lock_guard lock(inbox_mutex_);
-    auto it = inbox_.find(source);
-    if (inbox_closed_ || it == inbox_.end() || it->second) return false;
-    it->second = std::move(readings);
-  }
-  const std::uint64_t one = 1;
-  [[maybe_unused]] auto r = ::write(wake_fd_, &one, sizeof one);
-  return true;
-}
-
-void IngestServer::offer_identity(const std::string& source, std::string identity) {
-  {
-    std::lock_guard lock(inbox_mutex_);
-    // Bounded: a driver reconnecting in a tight loop cannot grow this list.
-    if (inbox_identities_.size() >= 64) return;
-    inbox_identities_.emplace_back(source, std::move(identity));
-  }
-  const std::uint64_t one = 1;
-  [[maybe_unused]] auto r = ::write(wake_fd_, &one, sizeof one);
-}
-
-void IngestServer::set_driver_status(std::function<json()> provider) {
-  driver_status_ = std::move(provider);
-}
-
-void IngestServer::drain_driver_inbox() {
-  std::vector<std::pair<std::string, std::string>> identities;
-  {
-    std::lock_guard lock(inbox_mutex_);
-    identities.swap(inbox_identities_);
-  }
-  for (auto& [name, identity] : identities) {
-    auto it = sources_.find(name);
-    if (it == sources_.end()) continue;
-    SourceRuntime& s = *it->second;
-    if (identity != s.instrument_identity) {
-      spdlog::info("source {}: the instrument identifies as \"{}\"", name, identity);
-    }
-    s.instrument_identity = identity;
-    identities_to_store_.emplace_back(&s, std::move(identity));
-  }
-  Peer driver;
-  driver.internal = true;
-  for (auto& [name, slot] : inbox_) {
-    if (held_) return;  // the writer is full: the drivers wait
-    std::optional<protocol::Readings> readings;
-    {
-      std::lock_guard lock(inbox_mutex_);
-      readings.swap(slot);
-    }
-    if (!readings) continue;
-    // The readings go through the same checks as a batch from the socket.
-    json array = json::array();
-    std::visit(
-        [&](const auto& rs) {
-          for (const auto& r : rs) array.push_back(protocol::reading_to_json(r));
-        },
-        *readings);
-    accept_readings(driver, *sources_.at(name), std::nullopt, array);
-  }
-}
-
-void IngestServer::submit_identities() {
-  const double now = unix_now();
-  while (!identities_to_store_.empty()) {
-    auto& [source, identity] = identities_to_store_.front();
-    store::WriteJob job;
-    job.source_id = source->state.id;
-    job.readings = protocol::empty_readings(source->state.kind);
-    job.identity = store::InstrumentIdentity{identity, now};
-    if (!writer_.try_submit(job)) return;  // the writer is full: later
-    identities_to_store_.erase(identities_to_store_.begin());
-  }
-}
-
-void IngestServer::on_control_message() {
-  std::vector<zmq::message_t> frames;
-  while (true) {
-    zmq::message_t frame;
-    if (!control_.recv(frame, zmq::recv_flags::dontwait)) break;
-    const bool more = frame.more();
-    if (frames.size() < 8) frames.push_back(std::move(frame));
-    if (!more) break;
-  }
-  if (frames.size() < 2) return;
-  Peer peer;
-  peer.identity = frames[0].to_string();
-  peer.delimiter = frames.size() == 3 && frames[1].size() == 0;
-  const auto payload = frames.back().to_string_view();
-  json request;
-  protocol::Limits limits = options_.limits;
-  auto bad = protocol::decode_frame(payload, limits, request, peer.encoding);
-  if (bad) return reply(control_, peer, protocol::error_message({std::nullopt, bad->reason, bad->detail}));
-  auto type = request.find("type");
-  const std::string name = type != request.end() && type->is_string() ? type->get<std::string>() : "";
-  if (name == "status") return reply(control_, peer, status());
-  auto handler = control_handlers_.find(name);
-  if (handler == control_handlers_.end()) {
-    std::string known = "status";
-    for (const auto& [t, h] : control_handlers_) known += ", " + t;
-    return reply(control_, peer,
-                 protocol::error_message({std::nullopt, Reason::unknown_type,
-                                          "the control socket answers the types " + known}));
-  }
-  json answer;
-  try {
-    answer = handler->second(request);
-  } catch (const std::exception& e) {
-    spdlog::error("control request \"{}\" failed: {}", name, e.what());
-    answer = protocol::error_message(
-        {std::nullopt, Reason::storage_error, "the " + name + " request failed: " + e.what()});
-  }
-  reply(control_, peer, answer);
-}
-
-void IngestServer::add_control_handler(std::string type, ControlHandler handler) {
-  control_handlers_[std::move(type)] = std::move(handler);
-}
-
-void IngestServer::set_tick_handler(std::function<void(const json& status)> handler) {
+void IngestServer::set_tick_handler(std::function<void(const IngestStatus& status)> handler) {
   tick_handler_ = std::move(handler);
 }
 
-json IngestServer::status() const {
-  const double now = unix_now();
-  const auto w = writer_.stats();
-  const std::string db = store::database_path(options_.data_dir);
-  json sources = json::array();
-  for (const auto& [name, s] : sources_) {
-    json j = {{"name", name},
-              {"kind", protocol::kind_name(s->state.kind)},
-              {"accepted", s->accepted},
-              {"duplicates", s->duplicates},
-              {"rejected", s->rejected},
-              {"rate_per_s", s->rate.rate_per_s()}};
-    j["highest_seq"] = s->durable_seq ? json(*s->durable_seq) : json(nullptr);
-    j["last_t"] = s->last_t ? json(*s->last_t) : json(nullptr);
-    // Wall seconds since a reading last arrived: the readings' own t may run
-    // ahead of this clock (an accelerated simulated instrument) or behind it.
-    j["age_s"] = s->last_arrival_unix > 0.0 ? json(now - s->last_arrival_unix) : json(nullptr);
-    j["last_arrival_unix"] = s->last_arrival_unix > 0.0 ? json(s->last_arrival_unix) : json(nullptr);
-    if (!s->instrument_identity.empty()) j["identity"] = s->instrument_identity;
-    sources.push_back(std::move(j));
+void IngestServer::publish_status() {
+  IngestStatus st;
+  st.started_unix = started_unix_;
+  st.counters = counters_;
+  st.backpressure = held_.has_value();
+  st.sources.reserve(sources_.size());
+  for (const auto& [name, src] : sources_) {
+    SourceStatus out;
+    out.name = name;
+    out.kind = src->state.kind;
+    out.accepted = src->accepted;
+    out.duplicates = src->duplicates;
+    out.rejected = src->rejected;
+    out.rate_per_s = src->rate.rate_per_s();
+    out.highest_seq = src->durable_seq;
+    out.last_t = src->last_t;
+    if (src->last_arrival_unix > 0.0) out.last_arrival_unix = src->last_arrival_unix;
+    out.instrument_identity = src->instrument_identity;
+    st.sources.push_back(std::move(out));
   }
-  json drivers = driver_status_ ? driver_status_() : json::array();
-  return {{"type", "status"},
-          {"pid", ::getpid()},
-          {"uptime_s", now - started_unix_},
-          {"database_bytes", file_size(db) + file_size(db + "-wal")},
-          {"counters", counters_.to_json()},
-          {"writer",
-           {{"queued_readings", w.queued_readings},
-            {"queued_batches", w.queued_jobs},
-            {"lag_s", w.oldest_queued_age_s},
-            {"commits", w.commits},
-            {"failed_commits", w.failed_commits},
-            {"readings_committed", w.readings_committed},
-            {"commit_p50_s", w.commit_p50_s},
-            {"commit_p99_s", w.commit_p99_s},
-            {"commit_p999_s", w.commit_p999_s},
-            {"commit_max_s", w.commit_max_s},
-            {"checkpoints", w.checkpoints},
-            {"backpressure", held_.has_value()}}},
-          {"sources", std::move(sources)},
-          {"drivers", std::move(drivers)}};
+  std::lock_guard lock(status_mutex_);
+  status_ = std::move(st);
+}
+
+IngestStatus IngestServer::status() const {
+  IngestStatus st;
+  {
+    std::lock_guard lock(status_mutex_);
+    st = status_;
+  }
+  st.writer = writer_.stats();
+  return st;
 }
 
 }  // namespace lphi::ingest

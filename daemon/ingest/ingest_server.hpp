@@ -1,4 +1,4 @@
-// IngestServer: lphid's ingest and control sockets.
+// IngestServer: lphid's ingest socket.
 //
 // The ingest socket (ZeroMQ ROUTER) takes batches of readings from senders
 // (DEALER or REQ). Each batch is checked in full -- its envelope, every
@@ -14,8 +14,9 @@
 // room again; ZeroMQ's bounded pipes then push back to the senders, who keep
 // their unacknowledged readings. No queue grows without bound.
 //
-// The control socket (ROUTER, JSON request/reply) answers {"type":"status"}
-// and every request type registered with add_control_handler().
+// The control socket is ControlServer's (daemon/control/control_server.hpp);
+// this server exposes its state as a typed IngestStatus (status()), from
+// which the status reply and lphid's health tick are made.
 //
 // lphid's own instrument drivers hand their readings in through
 // offer_driver_readings(). They take exactly the path of a batch from the
@@ -28,7 +29,9 @@
 //
 // All state lives on the thread that calls run(); the writer's commit
 // callbacks only hand completions over through a mutex-guarded list and an
-// eventfd.
+// eventfd. status() reads a snapshot that this thread refreshes before every
+// reply it sends and on every turn of its loop, so a sender that holds an
+// ack finds its readings counted.
 #pragma once
 
 #include <atomic>
@@ -46,6 +49,7 @@
 #include "daemon/config/config.hpp"
 #include "daemon/config/data_dir.hpp"
 #include "daemon/ingest/counters.hpp"
+#include "daemon/ingest/ingest_status.hpp"
 #include "schema/protocol/codec.hpp"
 #include "daemon/store/writer.hpp"
 
@@ -66,11 +70,10 @@ struct IngestOptions {
 
 class IngestServer {
  public:
-  // Binds both sockets. `sources` are the registered sources, by name.
-  static Status create(zmq::context_t& context, const IngestOptions& options,
-                              store::StoreWriter& writer,
-                              const std::map<std::string, store::SourceState>& sources,
-                              std::unique_ptr<IngestServer>& out);
+  // Binds the ingest socket. `sources` are the registered sources, by name.
+  static Status create(zmq::context_t& context, const IngestOptions& options, store::StoreWriter& writer,
+                       const std::map<std::string, store::SourceState>& sources,
+                       std::unique_ptr<IngestServer>& out);
   ~IngestServer();
   IngestServer(const IngestServer&) = delete;
   IngestServer& operator=(const IngestServer&) = delete;
@@ -86,18 +89,11 @@ class IngestServer {
   // From any thread: what the instrument behind `source` says it is. Logged
   // and recorded in the store (instrument_identities).
   void offer_identity(const std::string& source, std::string identity);
-  // Before run(): adds the result of `provider` as "drivers" to the status
-  // reply; it is called on run()'s thread and must be thread-safe.
-  void set_driver_status(std::function<nlohmann::json()> provider);
-  // Before run(): answers control requests whose "type" is `type` with what
-  // `handler` returns (its reply should carry the same "type", or be a
-  // protocol::error_message). Called on run()'s thread, so it must be quick
-  // and thread-safe; an exception it throws becomes an error reply.
-  using ControlHandler = std::function<nlohmann::json(const nlohmann::json& request)>;
-  void add_control_handler(std::string type, ControlHandler handler);
+  // From any thread: the counters, sources and writer statistics now.
+  IngestStatus status() const;
   // Before run(): called about once a second on run()'s thread with the
-  // status reply (lphid's health timer); must be quick.
-  void set_tick_handler(std::function<void(const nlohmann::json& status)> handler);
+  // status (lphid's health tick); must be quick.
+  void set_tick_handler(std::function<void(const IngestStatus& status)> handler);
 
  private:
   struct Peer {
@@ -137,7 +133,6 @@ class IngestServer {
 
   IngestServer(zmq::context_t& context, const IngestOptions& options, store::StoreWriter& writer);
   void on_ingest_message();
-  void on_control_message();
   void handle_request(const Peer& peer, std::string_view payload);
   void handle_batch(const Peer& peer, const nlohmann::json& message);
   void handle_hello(const Peer& peer, const nlohmann::json& message);
@@ -153,21 +148,25 @@ class IngestServer {
   void refuse(const Peer& peer, std::optional<std::uint64_t> batch_id, protocol::Reason reason,
               const std::string& detail);
   void reply(zmq::socket_t& socket, const Peer& peer, const nlohmann::json& message);
-  nlohmann::json status() const;
+  zmq::pollitem_t poll_once();
+  void take_completions_and_offers();
+  void read_ingest_socket(const zmq::pollitem_t& item);
+  void tick(double& last_tick);
+  void publish_status();
 
   IngestOptions options_;
   store::StoreWriter& writer_;
   zmq::socket_t ingest_;
-  zmq::socket_t control_;
   int wake_fd_ = -1;
   std::map<std::string, std::unique_ptr<SourceRuntime>> sources_;
   IngestCounters counters_;
   std::optional<Held> held_;
   double started_unix_ = 0.0;
 
-  std::function<nlohmann::json()> driver_status_;
-  std::map<std::string, ControlHandler> control_handlers_;
-  std::function<void(const nlohmann::json&)> tick_handler_;
+  std::function<void(const IngestStatus&)> tick_handler_;
+  // The snapshot status() hands out; this thread refreshes it.
+  mutable std::mutex status_mutex_;
+  IngestStatus status_;
   // Driver hand-overs: one slot per source (keys fixed at create()), and
   // identities, guarded by inbox_mutex_; this thread takes them out.
   std::mutex inbox_mutex_;

@@ -1,3 +1,7 @@
+// One algorithm, kept in one file although it runs past 500 lines: one
+// sample's live analysis as a pure value (sample_pipeline.hpp), readings in,
+// records out: align, segment, number the cooldowns, fit each sweep, update
+// sigma(0) per plateau and assess the verdict, in that order.
 #include "daemon/live/sample_pipeline.hpp"
 
 #include <algorithm>

@@ -6,6 +6,7 @@
 #include <gtest/gtest.h>
 
 #include <chrono>
+#include <cstdlib>
 #include <fstream>
 #include <map>
 #include <thread>
@@ -243,6 +244,90 @@ TEST(LiveDaemon, BadRequestsAreNamed) {
   const json other = ask(dir.path(), {{"type", "no-such-request"}});
   EXPECT_EQ(other.value("type", ""), "error");
   EXPECT_NE(other.dump().find("progress"), std::string::npos) << "the error lists the known types";
+  EXPECT_EQ(daemon.stop(), 0);
+}
+
+// The exception barrier of a sample's thread, through a real lphid: the
+// fault-injection hook (LPHI_FAULT_THROW_AT_SWEEP, sample_worker.hpp) makes
+// film-a's analysis throw at its sweep 1. lphid keeps running and acking,
+// `status` lists the failed part, film-a's progress carries the error, and
+// film-b, fed by the same sources, is analysed to the end.
+TEST(LiveDaemon, ASampleWhoseAnalysisThrowsStopsAloneAndIsListedAsFailed) {
+  lphi::testing::TempDir dir;
+  const std::string config_path = dir.file("lphid.toml");
+  const std::string film_b = R"toml(
+[[sample]]
+name = "film-b"
+model = "hln2d"
+squares = 5.0
+width_m = 20e-6
+thickness_m = 10e-9
+excitation_a = 10e-9
+lockin = "lockin-a"
+thermometer = "mxc"
+field = "magnet"
+gain = 100.0
+plateau_min_duration_s = 60.0
+)toml";
+  std::ofstream(config_path) << lphi::testing::test_config("gain = 100.0\nplateau_min_duration_s = 60.0\n", film_b);
+  lphi::live::testing::CooldownPlan plan;
+  plan.closing_ramp_t = 0.02;
+  const auto data = lphi::live::testing::make_cooldown(plan);
+  ASSERT_GT(data.sweep_temperature_k.size(), 2u);
+
+  ::setenv("LPHI_FAULT_THROW_AT_SWEEP", "film-a:1", 1);
+  lphi::testing::DaemonProcess daemon(dir.path(), config_path);
+  const bool started = daemon.start();
+  ::unsetenv("LPHI_FAULT_THROW_AT_SWEEP");
+  ASSERT_TRUE(started);
+  send_cooldown(dir.path(), data);  // every batch acknowledged, none refused
+
+  // film-a fails (bounded wait), listed in status with its error.
+  json failed;
+  for (int i = 0; i < 600 && failed.is_null(); ++i) {
+    const json status = ask(dir.path(), {{"type", "status"}});
+    ASSERT_TRUE(status.is_object()) << "lphid answers status";
+    ASSERT_TRUE(status.contains("failed_parts")) << status.dump();
+    for (const auto& part : status.at("failed_parts")) {
+      if (part.value("part", "") == "sample:film-a") failed = part;
+    }
+    if (failed.is_null()) std::this_thread::sleep_for(100ms);
+  }
+  ASSERT_TRUE(failed.is_object()) << "film-a is listed as failed";
+  EXPECT_NE(failed.value("error", "").find("sweep 1"), std::string::npos) << failed.dump();
+  EXPECT_TRUE(failed.at("at").is_number()) << failed.dump();
+  const json a = ask(dir.path(), {{"type", "progress"}, {"sample", "film-a"}});
+  EXPECT_FALSE(a.value("idle", true)) << a.dump();
+  EXPECT_NE(a.value("error", "").find("fault injection"), std::string::npos) << a.dump();
+
+  // film-b goes on to the end: every sweep fitted.
+  json b;
+  for (int i = 0; i < 600; ++i) {
+    b = ask(dir.path(), {{"type", "progress"}, {"sample", "film-b"}});
+    if (b.is_object() && b.value("idle", false)) break;
+    std::this_thread::sleep_for(100ms);
+  }
+  ASSERT_TRUE(b.value("idle", false)) << b.dump(1);
+  EXPECT_FALSE(b.contains("error")) << b.dump();
+  const json fits_b = ask(dir.path(), {{"type", "fits"}, {"sample", "film-b"}});
+  EXPECT_EQ(fits_b.at("fits").size(), data.sweep_temperature_k.size());
+  // film-a stored what it fitted before sweep 1 and nothing after.
+  const json fits_a = ask(dir.path(), {{"type", "fits"}, {"sample", "film-a"}});
+  EXPECT_LT(fits_a.at("fits").size(), data.sweep_temperature_k.size()) << fits_a.dump(1);
+
+  // Ingest still acknowledges after the failure.
+  zmq::context_t context(1);
+  lphi::drivers::SenderOptions o;
+  o.endpoint = lphi::config::client_endpoints(dir.path()).ingest;
+  o.source = "mxc";
+  o.kind = lphi::protocol::SourceKind::thermometer;
+  lphi::drivers::Sender sender(context, o);
+  const auto hello = sender.hello(10s);
+  ASSERT_TRUE(hello.has_value());
+  const double t_last = data.thermometer.back().t_s;
+  ASSERT_TRUE(sender.offer(lphi::protocol::ThermometerReading{hello->next_seq, t_last + 1.0, 0.1, {}}));
+  ASSERT_TRUE(sender.flush(10s));
+  EXPECT_EQ(sender.totals().rejected, 0u);
   EXPECT_EQ(daemon.stop(), 0);
 }
 
