@@ -2,44 +2,29 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstdio>
 #include <functional>
+#include <fmt/format.h>
 #include <map>
 
 namespace lphi::alerts {
 
 namespace {
 
-using Handler = std::function<void(const toml::node&, const std::string& key)>;
-using Handlers = std::map<std::string, Handler>;
+using Handler = text::TomlKeys::Handler;
+using Handlers = text::TomlKeys::Handlers;
 
-class Parser {
+// The [alerts] keys, checked by lphi's one TOML key checker.
+class Parser : public text::TomlKeys {
  public:
-  explicit Parser(std::vector<config::ConfigError>& errors) : errors_(errors) {}
-
-  void fail(const toml::node& node, const std::string& key, std::string message) {
-    errors_.push_back({node.source().begin.line, key, std::move(message)});
-  }
+  explicit Parser(std::vector<config::ConfigError>& errors) : text::TomlKeys(errors) {}
 
   void table(const toml::table& tbl, const std::string& prefix, const Handlers& handlers) {
-    for (auto&& [key, node] : tbl) {
-      const std::string name(key.str());
-      const std::string dotted = prefix + "." + name;
-      auto it = handlers.find(name);
-      if (it == handlers.end()) {
-        const std::size_t line =
-            key.source().begin.line != 0 ? key.source().begin.line : node.source().begin.line;
-        errors_.push_back({line, dotted, "unknown key"});
-        continue;
-      }
-      it->second(node, dotted);
-    }
+    visit(tbl, prefix, handlers);
   }
 
   Handler boolean(bool& out) {
     return [this, &out](const toml::node& n, const std::string& key) {
-      if (!n.is_boolean()) return fail(n, key, "must be true or false");
-      out = n.as_boolean()->get();
+      if (auto v = TomlKeys::boolean(n, key)) out = *v;
     };
   }
 
@@ -57,8 +42,9 @@ class Parser {
 
   Handler integer(std::int64_t& out, std::int64_t min, std::int64_t max) {
     return [this, &out, min, max](const toml::node& n, const std::string& key) {
-      if (!n.is_integer()) return fail(n, key, "must be an integer");
-      const std::int64_t v = n.as_integer()->get();
+      const auto value = TomlKeys::integer(n, key);
+      if (!value) return;
+      const std::int64_t v = *value;
       if (v < min || v > max) {
         return fail(n, key, "must lie between " + std::to_string(min) + " and " + std::to_string(max) +
                                 ", not " + std::to_string(v));
@@ -71,15 +57,9 @@ class Parser {
   // when min_open.
   Handler number(double& out, double min, double max, bool min_open) {
     return [this, &out, min, max, min_open](const toml::node& n, const std::string& key) {
-      double v = 0.0;
-      if (n.is_floating_point()) {
-        v = n.as_floating_point()->get();
-      } else if (n.is_integer()) {
-        v = static_cast<double>(n.as_integer()->get());
-      } else {
-        return fail(n, key, "must be a number");
-      }
-      if (!std::isfinite(v)) return fail(n, key, "must be a finite number");
+      const auto value = TomlKeys::number(n, key);
+      if (!value) return;
+      const double v = *value;
       const bool below = min_open ? !(v > min) : v < min;
       if (below || v > max) {
         std::string range = min_open ? "above " + format(min) : "at least " + format(min);
@@ -114,8 +94,8 @@ class Parser {
   template <class Rule>
   Handler rule(Rule& r, Handlers extra) {
     return [this, &r, extra = std::move(extra)](const toml::node& n, const std::string& key) mutable {
-      const toml::table* tbl = n.as_table();
-      if (tbl == nullptr) return fail(n, key, "must be a table");
+      const toml::table* tbl = TomlKeys::table(n, key);
+      if (tbl == nullptr) return;
       Handlers handlers = extra;
       handlers["enabled"] = boolean(r.enabled);
       handlers["severity"] = severity(r.severity);
@@ -124,14 +104,7 @@ class Parser {
     };
   }
 
-  static std::string format(double v) {
-    char buf[32];
-    std::snprintf(buf, sizeof buf, "%g", v);
-    return buf;
-  }
-
- private:
-  std::vector<config::ConfigError>& errors_;
+  static std::string format(double v) { return fmt::format("{:g}", v); }
 };
 
 }  // namespace

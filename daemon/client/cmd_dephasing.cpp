@@ -44,7 +44,7 @@ nlohmann::json to_json(const dephasing::DephasingResult& r, const std::string& s
 void print_human(const dephasing::DephasingResult& r, const std::string& source,
                  std::ostream& out) {
   out << "lphi dephasing: " << source << " (" << r.n_points << " temperatures)\n";
-  TextTable t;
+  Table t({}, 2);
   t.add("state", state_sentence(r.state));
   if (r.exponent_p) t.add("exponent p", format_with_error(*r.exponent_p, r.exponent_p_err, ""));
   if (r.prefactor_b) {

@@ -64,7 +64,7 @@ void print_human(const FitOutcome& o, std::ostream& out) {
   const auto& r = o.result;
   out << "lphi fit: " << o.source << " (" << mc::model_name(r.model) << ", from "
       << column_name(o.signal) << ", " << o.rows << " rows)\n";
-  TextTable t;
+  Table t({}, 2);
   t.add("L_phi", format_length(r.lphi_m, r.lphi_err_m));
   if (r.alpha) t.add("alpha", format_with_error(*r.alpha, r.alpha_err, ""));
   if (r.lso_m) t.add("L_so", format_length(*r.lso_m, r.lso_err_m));

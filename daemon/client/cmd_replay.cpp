@@ -3,14 +3,16 @@
 // sender library (acknowledged after commit, resent when lost), then waits
 // until lphid's analysis has consumed all of it.
 //
-// Steps: check the whole file; ask lphid for the sample's sources
-// ({"type":"samples"}); hello each source for its next seq; send every row
-// as one thermometer, one field and one lock-in reading (the cells present),
-// paced at --speed times real time or, with --fast, as fast as lphid
-// acknowledges; wait for every acknowledgement; poll {"type":"progress"}
-// until the analysis is idle and has analysed the last seq sent of each
-// source; print a summary. SIGINT stops the sending, waits for the
-// acknowledgements of what was sent and reports.
+// Steps, one function each (run_replay strings them together): check the
+// options (check_options) and the whole file (scan_file); ask lphid for the
+// sample's sources ({"type":"samples"}) and hello each source for its next
+// seq (connect_streams); send every row as one thermometer, one field and one
+// lock-in reading (the cells present), paced at --speed times real time or,
+// with --fast, as fast as lphid acknowledges (send_rows); wait for every
+// acknowledgement (wait_for_acks) and report them (report_sent); poll
+// {"type":"progress"} until the analysis is idle and has analysed the last
+// seq sent of each source (wait_for_analysis). SIGINT stops the sending,
+// waits for the acknowledgements of what was sent and reports.
 //
 // Relative times are shifted to Unix times by --start-unix T (t_unix = T +
 // time_s); by default T is chosen so that the recording ends now, since
@@ -171,7 +173,8 @@ int wait_for_analysis(const std::string& endpoint, const ReplayOptions& opt, con
   }
 }
 
-int run_replay(const ReplayOptions& opt) {
+// Step 0: the options that do not need the file. exit_ok to go on.
+int check_options(const ReplayOptions& opt, ColumnMap& map) {
   if (opt.speed && opt.fast) {
     std::cerr << "lphi: give --speed X or --fast, not both\n";
     return exit_bad_input;
@@ -180,16 +183,18 @@ int run_replay(const ReplayOptions& opt) {
     std::cerr << "lphi: --speed must be a positive number\n";
     return exit_bad_input;
   }
-  const double speed = opt.speed.value_or(1.0);
-  ColumnMap map;
   for (const auto& m : opt.columns) {
     if (auto s = add_column_mapping(m, map); !s.ok()) {
       std::cerr << "lphi: " << s.message() << "\n";
       return exit_bad_input;
     }
   }
-  // 1. The whole file first: nothing is sent from a file with a bad row.
-  RecordingSummary summary;
+  return exit_ok;
+}
+
+// Step 1: the whole file first, so that nothing is sent from a file with a
+// bad row; and the shift that makes its times Unix times.
+int scan_file(const ReplayOptions& opt, const ColumnMap& map, RecordingSummary& summary, double& shift) {
   {
     std::ifstream in(opt.path, std::ios::binary);
     if (!in) {
@@ -201,7 +206,7 @@ int run_replay(const ReplayOptions& opt) {
       return exit_bad_input;
     }
   }
-  double shift = 0.0;
+  shift = 0.0;
   if (!summary.unix_times) {
     shift = opt.start_unix ? *opt.start_unix : unix_now() - summary.last_t_s;
   } else if (opt.start_unix) {
@@ -213,19 +218,17 @@ int run_replay(const ReplayOptions& opt) {
               << " s Unix; give a later --start-unix\n";
     return exit_bad_input;
   }
+  return exit_ok;
+}
 
-  // 2. The sample's sources.
-  auto dir = locate_data_dir(opt.data_dir);
-  if (!dir) return exit_bad_input;
-  const auto endpoints = config::client_endpoints(*dir);
+// Step 2: the sample's sources from lphid, and a sender per source that
+// knows its next seq.
+int connect_streams(const ReplayOptions& opt, const config::Endpoints& endpoints,
+                    zmq::context_t& context, Streams& streams) {
   const auto samples = ask_control(endpoints.control, {{"type", "samples"}}, timeout_ms(opt.connect_timeout_s));
   if (samples.outcome != ControlReply::Outcome::ok) {
     return report_failed_reply(samples, "samples", endpoints.control);
   }
-  // The context outlives the senders' sockets (declared after it), or its
-  // destruction would wait for them forever.
-  zmq::context_t context(1);
-  Streams streams;
   bool found = false;
   for (const auto& s : samples.body.value("samples", json::array())) {
     if (!s.is_object() || s.value("name", "") != opt.sample) continue;
@@ -264,16 +267,43 @@ int run_replay(const ReplayOptions& opt) {
       if (ack.durable_through && (!*durable || *ack.durable_through > **durable)) *durable = ack.durable_through;
     };
   }
+  return exit_ok;
+}
 
-  // 3. Send, row by row.
+// Offers one row's readings (the cells present) at time t.
+void offer_row(Streams& streams, const RecordingRow& row, double t) {
+  if (row.temperature_k) streams.offer(thermometer, protocol::ThermometerReading{0, t, *row.temperature_k, {}});
+  if (row.field_t) streams.offer(field, protocol::FieldReading{0, t, *row.field_t});
+  if (row.has_lockin) {
+    protocol::LockinReading r;
+    r.t = t;
+    r.x_v = row.x_v;
+    r.y_v = row.y_v;
+    r.range_v = row.range_v;
+    r.time_constant_s = row.time_constant_s;
+    r.overload = row.overload;
+    streams.offer(lockin, r);
+  }
+}
+
+struct SendOutcome {
+  std::uint64_t rows = 0;
+  bool stopped = false;  // by SIGINT
+  Status status;         // a row that failed on the second reading
+};
+
+// Step 3: send, row by row, paced (or --fast); SIGINT stops it.
+SendOutcome send_rows(const ReplayOptions& opt, const ColumnMap& map, const RecordingSummary& summary,
+                      double shift, Streams& streams) {
+  const double speed = opt.speed.value_or(1.0);
   install_interrupt_handler();
   std::ifstream in(opt.path, std::ios::binary);
   RecordingReader reader;
-  Status status = in ? reader.open(in, opt.path, map) : Status::invalid_input("cannot open " + opt.path + " again");
-  std::uint64_t rows = 0;
+  SendOutcome out;
+  out.status = in ? reader.open(in, opt.path, map) : Status::invalid_input("cannot open " + opt.path + " again");
   const auto wall_start = Clock::now();
   RecordingRow row;
-  while (status.ok() && !interrupted() && reader.next(row, status)) {
+  while (out.status.ok() && !interrupted() && reader.next(row, out.status)) {
     if (!opt.fast) {
       const auto due = wall_start + std::chrono::duration_cast<Clock::duration>(
                                         std::chrono::duration<double>((row.t_s - summary.first_t_s) / speed));
@@ -284,27 +314,18 @@ int run_replay(const ReplayOptions& opt) {
       }
       if (interrupted()) break;
     }
-    const double t = row.t_s + shift;
-    if (row.temperature_k) streams.offer(thermometer, protocol::ThermometerReading{0, t, *row.temperature_k, {}});
-    if (row.field_t) streams.offer(field, protocol::FieldReading{0, t, *row.field_t});
-    if (row.has_lockin) {
-      protocol::LockinReading r;
-      r.t = t;
-      r.x_v = row.x_v;
-      r.y_v = row.y_v;
-      r.range_v = row.range_v;
-      r.time_constant_s = row.time_constant_s;
-      r.overload = row.overload;
-      streams.offer(lockin, r);
-    }
-    ++rows;
-    if (rows % 512 == 0) streams.pump_all(0ms);
+    offer_row(streams, row, row.t_s + shift);
+    ++out.rows;
+    if (out.rows % 512 == 0) streams.pump_all(0ms);
   }
-  const bool stopped = interrupted();
-  if (!status.ok()) std::cerr << "lphi: " << status.message() << " (the file changed while it was replayed?)\n";
-  if (stopped) std::cerr << "lphi: interrupted after " << rows << " rows; waiting for lphid's acknowledgements\n";
-  const bool acked = wait_for_acks(streams, opt);
+  out.stopped = interrupted();
+  return out;
+}
 
+// Step 4: what lphid answered, the first rejections of each source and the
+// summary line. Returns the number of rejected readings.
+std::uint64_t report_sent(const ReplayOptions& opt, const RecordingSummary& summary, const Streams& streams,
+                          std::uint64_t rows) {
   std::uint64_t accepted = 0, duplicates = 0, rejected = 0;
   for (std::size_t k = 0; k < 3; ++k) {
     const auto& t = streams.sender[k]->totals();
@@ -323,10 +344,38 @@ int run_replay(const ReplayOptions& opt) {
             << opt.sample << ": " << streams.offered[lockin] << " lock-in, " << streams.offered[thermometer]
             << " thermometer, " << streams.offered[field] << " field readings; accepted " << accepted
             << ", duplicates " << duplicates << ", rejected " << rejected << "\n";
-  if (!acked) return exit_unreachable;
-  if (stopped || !status.ok()) return status.ok() ? exit_failure : exit_bad_input;
+  return rejected;
+}
 
-  // 4. Until the analysis has it all.
+int run_replay(const ReplayOptions& opt) {
+  ColumnMap map;
+  if (const int code = check_options(opt, map); code != exit_ok) return code;
+  RecordingSummary summary;
+  double shift = 0.0;
+  if (const int code = scan_file(opt, map, summary, shift); code != exit_ok) return code;
+
+  auto dir = locate_data_dir(opt.data_dir);
+  if (!dir) return exit_bad_input;
+  const auto endpoints = config::client_endpoints(*dir);
+  // The context outlives the senders' sockets (declared after it), or its
+  // destruction would wait for them forever.
+  zmq::context_t context(1);
+  Streams streams;
+  if (const int code = connect_streams(opt, endpoints, context, streams); code != exit_ok) return code;
+
+  const SendOutcome sent = send_rows(opt, map, summary, shift, streams);
+  if (!sent.status.ok()) {
+    std::cerr << "lphi: " << sent.status.message() << " (the file changed while it was replayed?)\n";
+  }
+  if (sent.stopped) {
+    std::cerr << "lphi: interrupted after " << sent.rows << " rows; waiting for lphid's acknowledgements\n";
+  }
+  const bool acked = wait_for_acks(streams, opt);
+  const std::uint64_t rejected = report_sent(opt, summary, streams, sent.rows);
+  if (!acked) return exit_unreachable;
+  if (sent.stopped || !sent.status.ok()) return sent.status.ok() ? exit_failure : exit_bad_input;
+
+  // Step 5: until the analysis has it all.
   json progress;
   const int code = wait_for_analysis(endpoints.control, opt, streams, progress);
   if (code != exit_ok) return code;

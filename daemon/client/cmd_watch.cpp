@@ -98,7 +98,11 @@ int run_watch(const WatchOptions& opt) {
   socket.set(zmq::sockopt::linger, 0);
   for (const auto& topic : topics) socket.set(zmq::sockopt::subscribe, topic);
   try {
-    socket.connect(endpoints.events);
+    // Events published before the subscription reaches lphid are not
+    // delivered; say when it has (scripts and tests wait for this line).
+    if (connect_and_wait_for_handshake(context, socket, endpoints.events, timeout_ms(opt.connect_timeout_s))) {
+      std::cerr << "lphi: watching lphid's events at " << endpoints.events << "\n";
+    }
   } catch (const zmq::error_t& e) {
     std::cerr << "lphi: cannot connect to the event socket " << endpoints.events << ": " << e.what() << "\n";
     return exit_unreachable;

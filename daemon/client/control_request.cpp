@@ -1,6 +1,9 @@
 #include "daemon/client/control_request.hpp"
 
+#include <atomic>
 #include <cmath>
+#include <cstdint>
+#include <cstring>
 #include <iostream>
 #include <zmq.hpp>
 
@@ -94,6 +97,37 @@ int report_failed_reply(const ControlReply& reply, const std::string& request_ty
 
 std::chrono::milliseconds timeout_ms(double seconds) {
   return std::chrono::milliseconds(static_cast<long long>(std::ceil(seconds * 1000.0)));
+}
+
+bool connect_and_wait_for_handshake(zmq::context_t& context, zmq::socket_t& socket,
+                                    const std::string& endpoint, std::chrono::milliseconds timeout) {
+  // One inproc name per monitor: several may run in one process (tests).
+  static std::atomic<unsigned> monitors{0};
+  const std::string address = "inproc://lphi-handshake-" + std::to_string(monitors.fetch_add(1));
+  if (zmq_socket_monitor(socket.handle(), address.c_str(), ZMQ_EVENT_HANDSHAKE_SUCCEEDED) != 0) {
+    socket.connect(endpoint);
+    return false;
+  }
+  zmq::socket_t monitor(context, zmq::socket_type::pair);
+  monitor.set(zmq::sockopt::linger, 0);
+  monitor.connect(address);
+  socket.connect(endpoint);
+  bool joined = false;
+  const auto deadline = std::chrono::steady_clock::now() + timeout;
+  while (!joined) {
+    const auto left = std::chrono::duration_cast<std::chrono::milliseconds>(deadline - std::chrono::steady_clock::now());
+    if (left.count() <= 0) break;
+    zmq::pollitem_t item{monitor.handle(), 0, ZMQ_POLLIN, 0};
+    zmq::poll(&item, 1, left);
+    zmq::message_t event, peer;
+    if (!(item.revents & ZMQ_POLLIN) || !monitor.recv(event, zmq::recv_flags::dontwait)) continue;
+    (void)monitor.recv(peer, zmq::recv_flags::dontwait);  // the event's second frame: the endpoint
+    std::uint16_t id = 0;
+    if (event.size() >= sizeof id) std::memcpy(&id, event.data(), sizeof id);
+    joined = id == ZMQ_EVENT_HANDSHAKE_SUCCEEDED;
+  }
+  zmq_socket_monitor(socket.handle(), nullptr, 0);
+  return joined;
 }
 
 }  // namespace lphi::client

@@ -9,6 +9,7 @@
 #include <chrono>
 #include <nlohmann/json.hpp>
 #include <string>
+#include <zmq.hpp>
 
 namespace lphi::client {
 
@@ -38,6 +39,16 @@ ControlReply ask_control(const std::string& endpoint, const nlohmann::json& requ
 //   exit_failure.
 int report_failed_reply(const ControlReply& reply, const std::string& request_type,
                         const std::string& endpoint);
+
+// Connects `socket` (a SUB, before any message is expected) to `endpoint`
+// and waits at most `timeout` for ZeroMQ's handshake with the peer to
+// succeed (a socket monitor's ZMQ_EVENT_HANDSHAKE_SUCCEEDED). A SUB sends its
+// subscriptions right after the handshake, so this is the bounded
+// condition that replaces a fixed "slow joiner" pause. False on timeout
+// (the socket stays connected and may still join later). Throws
+// zmq::error_t when the endpoint is malformed, as connect() does.
+bool connect_and_wait_for_handshake(zmq::context_t& context, zmq::socket_t& socket,
+                                    const std::string& endpoint, std::chrono::milliseconds timeout);
 
 // Milliseconds for a --timeout-s value (seconds, > 0).
 std::chrono::milliseconds timeout_ms(double seconds);

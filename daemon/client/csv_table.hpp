@@ -1,17 +1,13 @@
 // A small, strict reader for the comma-separated tables lphi reads: sweeps
 // (field_t, rsq_ohm, ...), L_phi(T) tables and recorded readings.
 //
-// Format:
-//   - the first line that is neither blank nor a comment is the header row;
-//     it names the columns (non-empty, unique);
-//   - cells are separated by commas; whitespace around a cell is trimmed;
-//     there is no quoting (a comma always separates);
-//   - CRLF line ends and a leading UTF-8 byte-order mark are tolerated;
-//   - blank lines and lines whose first non-blank character is '#' are skipped;
-//   - every data row has exactly as many cells as the header.
+// Format: the lexical rules of schema/text/csv_reader.hpp (header row of
+// unique names, commas, RFC 4180 quotes, '#' comments, blank lines, CRLF,
+// BOM), and in addition:
+//   - every data row has exactly as many cells as the header;
 //   - columns are looked up by name; columns nobody asks for are ignored.
 //
-// Numbers are parsed strictly with std::from_chars: the whole cell must be a
+// Numbers are parsed strictly by text::parse_number: the whole cell must be a
 // finite decimal number ("1.5x", "", "nan", "inf" are errors). Every error
 // message names the file's line number (1-based, counting every line, so it
 // matches what an editor shows) and the column.
@@ -26,12 +22,12 @@
 #include <vector>
 
 #include "schema/status.hpp"
+#include "schema/text/text.hpp"
 
 namespace lphi::client {
 
-// Parses one cell as a finite double. On failure returns nothing and sets
-// *why to a short reason ("is empty", "is not a number", ...).
-std::optional<double> parse_number(std::string_view cell, std::string* why);
+// Parses one cell as a finite double (schema/text/text.hpp).
+using text::parse_number;
 
 class CsvTable {
  public:

@@ -8,7 +8,8 @@
 #include <sstream>
 #include <string>
 
-#include "daemon/client/csv_table.hpp"
+#include "schema/text/csv_reader.hpp"
+#include "schema/text/text.hpp"
 #include "daemon/client/daemon_locate.hpp"
 #include "daemon/client/exit_codes.hpp"
 #include "schema/protocol/codec.hpp"
@@ -79,20 +80,27 @@ bool feed_jsonl(Feeder& feeder, std::istream& in) {
   return true;
 }
 
+// Streams the rows: a long pipe of readings is sent as it comes, in bounded memory.
 bool feed_csv(Feeder& feeder, std::istream& in) {
-  std::ostringstream buffer;
-  buffer << in.rdbuf();
-  const std::string text = buffer.str();
-  CsvTable table;
-  if (auto s = CsvTable::parse(text, "stdin", table); !s.ok()) {
+  text::CsvReader reader(in, "stdin");
+  std::vector<std::string> header;
+  if (auto s = reader.read_header(header); !s.ok()) {
     std::cerr << s.message() << "\n";
     return false;
   }
-  for (std::size_t row = 0; row < table.row_count(); ++row) {
+  std::vector<std::string> cells;
+  Status status;
+  while (reader.next(cells, status)) {
+    if (cells.size() != header.size()) {
+      std::cerr << reader.at_line(reader.line()) << ": row has " << cells.size()
+                << (cells.size() == 1 ? " cell" : " cells") << ", the header has " << header.size()
+                << " columns\n";
+      return false;
+    }
     json reading = json::object();
-    for (std::size_t col = 0; col < table.header().size(); ++col) {
-      const std::string& name = table.header()[col];
-      const std::string& cell = table.cell(row, col);
+    for (std::size_t col = 0; col < header.size(); ++col) {
+      const std::string& name = header[col];
+      const std::string& cell = cells[col];
       if (cell.empty()) continue;  // an optional value left out
       if (name == "overload") {
         if (cell == "true" || cell == "1") {
@@ -104,8 +112,7 @@ bool feed_csv(Feeder& feeder, std::istream& in) {
         }
         continue;
       }
-      std::string why;
-      auto v = parse_number(cell, &why);
+      auto v = text::parse_number(cell);
       if (!v) {
         reading[name] = cell;
       } else if (name == "seq") {
@@ -115,7 +122,11 @@ bool feed_csv(Feeder& feeder, std::istream& in) {
         reading[name] = *v;
       }
     }
-    feeder.feed(std::move(reading), "stdin line " + std::to_string(table.line_number(row)));
+    feeder.feed(std::move(reading), reader.at_line(reader.line()));
+  }
+  if (!status.ok()) {
+    std::cerr << status.message() << "\n";
+    return false;
   }
   return true;
 }

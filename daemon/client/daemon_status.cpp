@@ -1,4 +1,6 @@
 // lphi status: what lphid reports about itself, its sources and its writer.
+
+#include <fmt/format.h>
 #include <chrono>
 #include <cstdint>
 #include <cstdio>
@@ -16,9 +18,7 @@ namespace {
 using nlohmann::json;
 
 std::string fixed(double v, int digits) {
-  char buf[64];
-  std::snprintf(buf, sizeof buf, "%.*f", digits, v);
-  return buf;
+  return fmt::format("{:.{}f}", v, digits);
 }
 
 std::string value_or_dash(const json& v, int digits) {

@@ -1,5 +1,6 @@
 #include "daemon/client/format.hpp"
 
+#include <fmt/format.h>
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
@@ -8,9 +9,7 @@ namespace lphi::client {
 
 std::string format_number(double value, int significant) {
   if (!std::isfinite(value)) return std::isnan(value) ? "nan" : (value > 0 ? "inf" : "-inf");
-  char buffer[64];
-  std::snprintf(buffer, sizeof buffer, "%.*g", significant, value);
-  return buffer;
+  return fmt::format("{:.{}g}", value, significant);
 }
 
 std::string format_with_error(double value, std::optional<double> error,
@@ -25,15 +24,13 @@ std::string format_with_error(double value, std::optional<double> error,
     // nothing; the value is then shown to 8 digits and the error on its own.
     const int magnitude =
         value != 0.0 ? static_cast<int>(std::floor(std::log10(std::fabs(value)))) : 0;
-    char buffer[96];
     if (decimals == 0 && exponent > 6) {
-      std::snprintf(buffer, sizeof buffer, "%.3g +/- %.2g", value, *error);
+      text = fmt::format("{:.3g} +/- {:.2g}", value, *error);
     } else if (magnitude + decimals + 1 > 8) {
-      std::snprintf(buffer, sizeof buffer, "%.8g +/- %.2g", value, *error);
+      text = fmt::format("{:.8g} +/- {:.2g}", value, *error);
     } else {
-      std::snprintf(buffer, sizeof buffer, "%.*f +/- %.*f", decimals, value, decimals, *error);
+      text = fmt::format("{:.{}f} +/- {:.{}f}", value, decimals, *error, decimals);
     }
-    text = buffer;
   } else {
     text = format_number(value, 4);
   }
@@ -64,16 +61,33 @@ std::string format_temperature_mk(double temperature_k, std::optional<double> er
   return format_with_error(temperature_k * 1e3, error, "mK");
 }
 
-void TextTable::add(std::string label, std::string value) {
-  rows_.emplace_back(std::move(label), std::move(value));
+Table::Table(std::vector<std::string> header, std::size_t indent)
+    : header_(std::move(header)), indent_(indent) {}
+
+void Table::add(std::vector<std::string> row) {
+  if (!header_.empty()) row.resize(header_.size());
+  rows_.push_back(std::move(row));
 }
 
-void TextTable::print(std::ostream& out) const {
-  std::size_t width = 0;
-  for (const auto& row : rows_) width = std::max(width, row.first.size());
-  for (const auto& [label, value] : rows_) {
-    out << "  " << label << std::string(width - label.size() + 2, ' ') << value << '\n';
-  }
+void Table::print(std::ostream& out) const {
+  std::vector<std::size_t> width(header_.size(), 0);
+  auto widen = [&](const std::vector<std::string>& cells) {
+    if (width.size() < cells.size()) width.resize(cells.size(), 0);
+    for (std::size_t c = 0; c < cells.size(); ++c) width[c] = std::max(width[c], cells[c].size());
+  };
+  widen(header_);
+  for (const auto& row : rows_) widen(row);
+  auto line = [&](const std::vector<std::string>& cells) {
+    std::string text(indent_, ' ');
+    for (std::size_t c = 0; c < cells.size(); ++c) {
+      text += cells[c];
+      if (c + 1 < cells.size()) text += std::string(width[c] - cells[c].size() + 2, ' ');
+    }
+    while (!text.empty() && text.back() == ' ') text.pop_back();
+    out << text << '\n';
+  };
+  if (!header_.empty()) line(header_);
+  for (const auto& row : rows_) line(row);
 }
 
 }  // namespace lphi::client

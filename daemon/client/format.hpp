@@ -1,9 +1,10 @@
 // Human-readable output of the terminal client: numbers in units chosen for
 // reading (lengths in nm or um, fields in mT, temperatures in mK), values
-// with their 1-sigma errors, and a two-column table. SI values in, text out;
+// with their 1-sigma errors, and the tables. SI values in, text out;
 // the JSON output never goes through here.
 #pragma once
 
+#include <cstddef>
 #include <optional>
 #include <ostream>
 #include <string>
@@ -30,14 +31,24 @@ std::string format_field_mt(double field_t, std::optional<double> error_t = std:
 std::string format_temperature_mk(double temperature_k,
                                   std::optional<double> error_k = std::nullopt);
 
-// Rows of "label  value", printed with the labels padded to one width.
-class TextTable {
+// The one table printer of lphi's human output: columns padded to their
+// widest cell and two spaces apart, each line indented by `indent` spaces,
+// no trailing blanks. With a header, the header is the first line and every
+// row has as many cells as it (padded with empty cells, longer rows cut);
+// without one, rows of any length ("label  value" lists).
+class Table {
  public:
-  void add(std::string label, std::string value);
+  explicit Table(std::vector<std::string> header = {}, std::size_t indent = 0);
+  void add(std::vector<std::string> row);
+  // A "label  value" row.
+  void add(std::string label, std::string value) { add({std::move(label), std::move(value)}); }
   void print(std::ostream& out) const;
+  std::size_t rows() const { return rows_.size(); }
 
  private:
-  std::vector<std::pair<std::string, std::string>> rows_;
+  std::vector<std::string> header_;
+  std::size_t indent_;
+  std::vector<std::vector<std::string>> rows_;
 };
 
 }  // namespace lphi::client

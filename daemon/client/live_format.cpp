@@ -55,11 +55,6 @@ std::string value_with_error(const json& object, std::string_view key, std::stri
   return format_with_error(*v, number_at(object, err_key), "");
 }
 
-std::string trimmed(std::string s) {
-  while (!s.empty() && s.back() == ' ') s.pop_back();
-  return s;
-}
-
 }  // namespace
 
 std::string format_utc(double unix_s) {
@@ -89,33 +84,8 @@ std::optional<double> number_at(const json& object, std::string_view key) {
   return v;
 }
 
-ColumnTable::ColumnTable(std::vector<std::string> header) : header_(std::move(header)) {}
-
-void ColumnTable::add(std::vector<std::string> row) {
-  row.resize(header_.size());
-  rows_.push_back(std::move(row));
-}
-
-void ColumnTable::print(std::ostream& out) const {
-  std::vector<std::size_t> width(header_.size(), 0);
-  for (std::size_t c = 0; c < header_.size(); ++c) width[c] = header_[c].size();
-  for (const auto& row : rows_) {
-    for (std::size_t c = 0; c < row.size(); ++c) width[c] = std::max(width[c], row[c].size());
-  }
-  auto line = [&](const std::vector<std::string>& cells) {
-    std::string text;
-    for (std::size_t c = 0; c < cells.size(); ++c) {
-      text += cells[c];
-      if (c + 1 < cells.size()) text += std::string(width[c] - cells[c].size() + 2, ' ');
-    }
-    out << trimmed(std::move(text)) << '\n';
-  };
-  line(header_);
-  for (const auto& row : rows_) line(row);
-}
-
 void print_sweeps_table(const json& sweeps, std::ostream& out) {
-  ColumnTable table({"sample", "cooldown", "sweep", "dir", "start (UTC)", "length", "field", "points", "T",
+  Table table({"sample", "cooldown", "sweep", "dir", "start (UTC)", "length", "field", "points", "T",
                      "T spread", "fitted", "notes"});
   for (const auto& s : sweeps) {
     std::string field = dash;
@@ -140,7 +110,7 @@ void print_sweeps_table(const json& sweeps, std::ostream& out) {
 }
 
 void print_fits_table(const json& fits, std::ostream& out) {
-  ColumnTable table({"sample", "cooldown", "sweep", "T", "L_phi", "alpha", "L_so", "chi2_red", "points", "window",
+  Table table({"sample", "cooldown", "sweep", "T", "L_phi", "alpha", "L_so", "chi2_red", "points", "window",
                      "used", "notes"});
   for (const auto& f : fits) {
     std::string notes;
@@ -176,7 +146,7 @@ void print_verdicts(const json& verdicts, std::ostream& out) {
     if (!first) out << '\n';
     first = false;
     out << text_at(v, "sample") << ": " << text_at(v, "state") << '\n';
-    TextTable table;
+    Table table({}, 2);
     table.add("cooldown", text_at(v, "cooldown"));
     table.add("exponent p", value_with_error(v, "exponent_p", "exponent_p_err"));
     table.add("L_phi saturation", length_at(v, "lphi_sat_m", "lphi_sat_err_m"));
@@ -192,7 +162,7 @@ void print_verdicts(const json& verdicts, std::ostream& out) {
 }
 
 void print_alerts_table(const json& alerts, std::ostream& out) {
-  ColumnTable table({"id", "severity", "state", "rule", "subject", "raised (UTC)", "message"});
+  Table table({"id", "severity", "state", "rule", "subject", "raised (UTC)", "message"});
   for (const auto& a : alerts) {
     std::string subject = text_at(a, "subject");
     if (subject.empty()) subject = dash;

@@ -25,19 +25,6 @@ std::string format_temperature(double temperature_k, std::optional<double> error
 // A number member of a JSON object, or nothing when absent, null or not a number.
 std::optional<double> number_at(const nlohmann::json& object, std::string_view key);
 
-// Columns padded to their widest cell; the first row is the header.
-class ColumnTable {
- public:
-  explicit ColumnTable(std::vector<std::string> header);
-  void add(std::vector<std::string> row);  // as many cells as the header
-  void print(std::ostream& out) const;
-  std::size_t rows() const { return rows_.size(); }
-
- private:
-  std::vector<std::string> header_;
-  std::vector<std::vector<std::string>> rows_;
-};
-
 // The tables. Each takes the array of the reply ("sweeps", "fits",
 // "verdicts", "alerts") and tolerates missing keys.
 void print_sweeps_table(const nlohmann::json& sweeps, std::ostream& out);

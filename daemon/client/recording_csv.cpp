@@ -5,6 +5,8 @@
 #include <set>
 
 #include "daemon/client/format.hpp"
+#include "schema/protocol/limits.hpp"
+#include "schema/text/text.hpp"
 
 namespace lphi::client {
 
@@ -22,39 +24,7 @@ enum Column : std::size_t {
   column_count
 };
 
-bool is_blank(char c) { return c == ' ' || c == '\t' || c == '\r' || c == '\v' || c == '\f'; }
-
-std::string trim(const std::string& s) {
-  std::size_t a = 0, b = s.size();
-  while (a < b && is_blank(s[a])) ++a;
-  while (b > a && is_blank(s[b - 1])) --b;
-  return s.substr(a, b - a);
-}
-
-void split_cells(const std::string& line, std::vector<std::string>& cells) {
-  cells.clear();
-  std::size_t from = 0;
-  for (;;) {
-    const auto comma = line.find(',', from);
-    cells.push_back(trim(line.substr(from, comma == std::string::npos ? std::string::npos : comma - from)));
-    if (comma == std::string::npos) break;
-    from = comma + 1;
-  }
-}
-
-bool skipped(const std::string& line) {
-  const auto first = line.find_first_not_of(" \t\r\v\f");
-  return first == std::string::npos || line[first] == '#';
-}
-
-std::string quoted(const std::string& cell) {
-  constexpr std::size_t max_shown = 40;
-  std::string text(1, '\'');
-  text.append(cell, 0, std::min(cell.size(), max_shown));
-  if (cell.size() > max_shown) text.append("...");
-  text.push_back('\'');
-  return text;
-}
+std::string trimmed(const std::string& s) { return std::string(text::trim(s)); }
 
 }  // namespace
 
@@ -70,8 +40,8 @@ Status add_column_mapping(const std::string& mapping, ColumnMap& map) {
   if (eq == std::string::npos || eq == 0 || eq + 1 == mapping.size()) {
     return Status::invalid_input("--column '" + mapping + "': expected COLUMN=NAME, e.g. time_s=t_sec");
   }
-  const std::string canonical = trim(mapping.substr(0, eq));
-  const std::string name = trim(mapping.substr(eq + 1));
+  const std::string canonical = trimmed(mapping.substr(0, eq));
+  const std::string name = trimmed(mapping.substr(eq + 1));
   bool known = false;
   for (const auto& c : recording_columns()) known = known || c == canonical;
   if (!known) {
@@ -90,48 +60,30 @@ Status add_column_mapping(const std::string& mapping, ColumnMap& map) {
 
 Status RecordingReader::open(std::istream& in, std::string source_name, const ColumnMap& map) {
   *this = RecordingReader{};
-  in_ = &in;
   source_name_ = std::move(source_name);
-  std::string line;
-  while (std::getline(in, line)) {
-    ++line_;
-    if (line_ == 1 && line.rfind("\xEF\xBB\xBF", 0) == 0) line.erase(0, 3);
-    if (skipped(line)) continue;
-    std::vector<std::string> header;
-    split_cells(line, header);
-    std::set<std::string> seen;
+  reader_.emplace(in, source_name_);
+  std::vector<std::string> header;
+  if (auto s = reader_->read_header(header); !s.ok()) return s;
+  const std::size_t line = reader_->line();
+  header_cells_ = header.size();
+  index_.assign(column_count, std::nullopt);
+  file_names_.assign(column_count, {});
+  const auto& names = recording_columns();
+  for (std::size_t c = 0; c < column_count; ++c) {
+    const auto mapped = map.find(names[c]);
+    file_names_[c] = mapped != map.end() ? mapped->second : names[c];
     for (std::size_t i = 0; i < header.size(); ++i) {
-      if (header[i].empty()) {
-        return Status::invalid_input(source_name_ + " line " + std::to_string(line_) + ": header cell " +
-                                  std::to_string(i + 1) + " is empty");
-      }
-      if (!seen.insert(header[i]).second) {
-        return Status::invalid_input(source_name_ + " line " + std::to_string(line_) + ": column '" + header[i] +
-                                  "' appears twice in the header");
-      }
+      if (header[i] == file_names_[c]) index_[c] = i;
     }
-    header_cells_ = header.size();
-    index_.assign(column_count, std::nullopt);
-    file_names_.assign(column_count, {});
-    const auto& names = recording_columns();
-    for (std::size_t c = 0; c < column_count; ++c) {
-      const auto mapped = map.find(names[c]);
-      file_names_[c] = mapped != map.end() ? mapped->second : names[c];
-      for (std::size_t i = 0; i < header.size(); ++i) {
-        if (header[i] == file_names_[c]) index_[c] = i;
-      }
-      if (!index_[c] && c < recording_required_columns) {
-        std::string message = source_name_ + " line " + std::to_string(line_) + ": no column '" + file_names_[c] + "'";
-        if (mapped != map.end()) message += " (given for " + names[c] + " by --column)";
-        message += "; a recording needs time_s, temperature_k, field_t, lockin_x_v, lockin_y_v"
-                   " (map other names with --column " + names[c] + "=NAME)";
-        return Status::invalid_input(message);
-      }
+    if (!index_[c] && c < recording_required_columns) {
+      std::string message = reader_->at_line(line) + ": no column '" + file_names_[c] + "'";
+      if (mapped != map.end()) message += " (given for " + names[c] + " by --column)";
+      message += "; a recording needs time_s, temperature_k, field_t, lockin_x_v, lockin_y_v"
+                 " (map other names with --column " + names[c] + "=NAME)";
+      return Status::invalid_input(message);
     }
-    return Status::success();
   }
-  if (in.bad()) return Status::invalid_input(source_name_ + ": read error");
-  return Status::invalid_input(source_name_ + ": no header line (the file is empty)");
+  return Status::success();
 }
 
 std::string RecordingReader::where(std::size_t line, std::size_t canonical) const {
@@ -142,25 +94,22 @@ std::string RecordingReader::where(std::size_t line, std::size_t canonical) cons
 
 bool RecordingReader::next(RecordingRow& row, Status& status) {
   status = Status::success();
-  if (in_ == nullptr) {
+  if (!reader_) {
     status = Status::invalid_input("recording not opened");
     return false;
   }
-  std::string line;
-  while (std::getline(*in_, line)) {
-    ++line_;
-    if (skipped(line)) continue;
-    split_cells(line, cells_);
+  while (reader_->next(cells_, status)) {
+    const std::size_t line = reader_->line();
     auto fail = [&](std::string message) {
       status = Status::invalid_input(std::move(message));
       return false;
     };
     if (cells_.size() != header_cells_) {
-      return fail(source_name_ + " line " + std::to_string(line_) + ": " + std::to_string(cells_.size()) +
+      return fail(reader_->at_line(line) + ": " + std::to_string(cells_.size()) +
                   " cells, but the header has " + std::to_string(header_cells_));
     }
     row = RecordingRow{};
-    row.line = line_;
+    row.line = line;
     auto cell = [&](std::size_t c) -> const std::string* {
       return index_[c] ? &cells_[*index_[c]] : nullptr;
     };
@@ -170,13 +119,13 @@ bool RecordingReader::next(RecordingRow& row, Status& status) {
       if (text == nullptr || text->empty()) return true;
       std::string why;
       auto v = parse_number(*text, &why);
-      if (!v) return fail(where(line_, c) + ": " + why);
+      if (!v) return fail(where(line, c) + ": " + why);
       out = v;
       return true;
     };
     std::optional<double> t, temperature, field, x, y, range, tc;
     if (const std::string* text = cell(time_s); text == nullptr || text->empty()) {
-      return fail(where(line_, time_s) + ": is empty (every row needs its time)");
+      return fail(where(line, time_s) + ": is empty (every row needs its time)");
     }
     if (!number(time_s, t) || !number(temperature_k, temperature) || !number(field_t, field) ||
         !number(lockin_x_v, x) || !number(lockin_y_v, y) || !number(lockin_range_v, range) ||
@@ -187,30 +136,32 @@ bool RecordingReader::next(RecordingRow& row, Status& status) {
     const bool unix_time = row.t_s >= unix_time_threshold_s;
     if (!unix_times_) unix_times_ = unix_time;
     if (*unix_times_ != unix_time) {
-      return fail(where(line_, time_s) + ": " + format_number(row.t_s, 12) +
+      return fail(where(line, time_s) + ": " + format_number(row.t_s, 12) +
                   (unix_time ? " is a Unix time, but the recording began with relative times"
                              : " is a relative time, but the recording began with Unix times"));
     }
     if (previous_t_ && row.t_s < *previous_t_) {
-      return fail(where(line_, time_s) + ": time runs backward (" + format_number(row.t_s, 12) + " after " +
+      return fail(where(line, time_s) + ": time runs backward (" + format_number(row.t_s, 12) + " after " +
                   format_number(*previous_t_, 12) + ")");
     }
     previous_t_ = row.t_s;
     if (temperature) {
-      if (!(*temperature > 0.0 && *temperature < 1000.0)) {
-        return fail(where(line_, temperature_k) + ": " + format_number(*temperature, 6) +
-                    " K is outside (0, 1000) K");
+      if (!protocol::limits::temperature_in_range(*temperature)) {
+        return fail(where(line, temperature_k) + ": " + format_number(*temperature, 6) +
+                    " K is outside (0, " +
+                    format_number(protocol::limits::max_temperature_k, 6) + ") K");
       }
       row.temperature_k = temperature;
     }
     if (field) {
-      if (!(std::fabs(*field) < 50.0)) {
-        return fail(where(line_, field_t) + ": " + format_number(*field, 6) + " T is not below 50 T in magnitude");
+      if (!protocol::limits::field_in_range(*field)) {
+        return fail(where(line, field_t) + ": " + format_number(*field, 6) + " T is not below " +
+                    format_number(protocol::limits::max_abs_field_t, 6) + " T in magnitude");
       }
       row.field_t = field;
     }
     if (x.has_value() != y.has_value()) {
-      return fail(where(line_, x ? lockin_y_v : lockin_x_v) +
+      return fail(where(line, x ? lockin_y_v : lockin_x_v) +
                   ": is empty while the other lock-in value is not (both or neither)");
     }
     if (x) {
@@ -218,12 +169,12 @@ bool RecordingReader::next(RecordingRow& row, Status& status) {
       row.x_v = *x;
       row.y_v = *y;
       if (range) {
-        if (!(*range > 0.0)) return fail(where(line_, lockin_range_v) + ": must be > 0, got " + format_number(*range, 6));
+        if (!(*range > 0.0)) return fail(where(line, lockin_range_v) + ": must be > 0, got " + format_number(*range, 6));
         row.range_v = range;
       }
       if (tc) {
         if (!(*tc > 0.0)) {
-          return fail(where(line_, lockin_time_constant_s) + ": must be > 0, got " + format_number(*tc, 6));
+          return fail(where(line, lockin_time_constant_s) + ": must be > 0, got " + format_number(*tc, 6));
         }
         row.time_constant_s = tc;
       }
@@ -233,13 +184,12 @@ bool RecordingReader::next(RecordingRow& row, Status& status) {
         } else if (*text == "0" || *text == "false") {
           row.overload = false;
         } else {
-          return fail(where(line_, lockin_overload) + ": " + quoted(*text) + " is not 0, 1, false or true");
+          return fail(where(line, lockin_overload) + ": " + text::quote_cell(*text) + " is not 0, 1, false or true");
         }
       }
     }
     return true;
   }
-  if (in_->bad()) status = Status::invalid_input(source_name_ + ": read error after line " + std::to_string(line_));
   return false;
 }
 

@@ -12,11 +12,11 @@
 //   lockin_range_v          optional column: > 0 (or empty)
 //   lockin_time_constant_s  optional column: > 0 (or empty)
 // The first five columns must be in the header; other columns are ignored.
-// The lexical rules are those of csv_table.hpp (header line, commas without
-// quoting, '#' comments, blank lines, CRLF, BOM).
+// The lexical rules are those of schema/text/csv_reader.hpp (header line,
+// commas, RFC 4180 quotes, '#' comments, blank lines, CRLF, BOM).
 //
-// Every row is checked as lphid checks a reading (protocol/codec.cpp: T in
-// (0, 1000) K, |B| < 50 T, finite values), and time may not run backward
+// Every row is checked as lphid checks a reading (schema/protocol/limits.hpp:
+// T in (0, 1000) K, |B| < 50 T, finite values), and time may not run backward
 // nor mix Unix and relative times (the kind of the first row's time holds).
 // A bad row is an error naming the file, line and column. The file is read
 // as a stream (a long recording is not held in memory), so a replay reads
@@ -31,6 +31,7 @@
 #include <vector>
 
 #include "daemon/client/csv_table.hpp"
+#include "schema/text/csv_reader.hpp"
 
 namespace lphi::client {
 
@@ -69,9 +70,8 @@ class RecordingReader {
 
  private:
   std::string where(std::size_t line, std::size_t canonical) const;
-  std::istream* in_ = nullptr;
+  std::optional<text::CsvReader> reader_;
   std::string source_name_;
-  std::size_t line_ = 0;
   std::size_t header_cells_ = 0;
   // Per canonical column (recording_columns order): its index in the file.
   std::vector<std::optional<std::size_t>> index_;

@@ -14,37 +14,34 @@ namespace lphi::config {
 
 namespace {
 
-using Handler = std::function<void(const toml::node&, const std::string& key)>;
+using Handler = text::TomlKeys::Handler;
 
-class Checker {
- public:
+// The errors a Checker collects; a base so that they exist before TomlKeys
+// refers to them.
+struct ErrorList {
   std::vector<ConfigError> errors;
+};
 
-  void fail(const toml::node& node, const std::string& key, std::string message) {
-    errors.push_back({node.source().begin.line, key, std::move(message)});
-  }
+// lphi's one TOML key checker (schema/text/toml_keys.hpp) with the handlers
+// of the config's value kinds.
+class Checker : private ErrorList, public text::TomlKeys {
+ public:
+  using ErrorList::errors;
+  Checker() : text::TomlKeys(ErrorList::errors) {}
+  Checker(const Checker&) = delete;
+  Checker& operator=(const Checker&) = delete;
 
   // Visits every key of `table`: known ones through their handler, the rest as errors.
   void table(const toml::table& tbl, const std::string& prefix,
              const std::map<std::string, Handler>& handlers) {
-    for (auto&& [key, node] : tbl) {
-      const std::string name(key.str());
-      const std::string dotted = prefix.empty() ? name : prefix + "." + name;
-      auto it = handlers.find(name);
-      if (it == handlers.end()) {
-        errors.push_back({key.source().begin.line != 0 ? key.source().begin.line
-                                                       : node.source().begin.line,
-                          dotted, "unknown key"});
-        continue;
-      }
-      it->second(node, dotted);
-    }
+    visit(tbl, prefix, handlers);
   }
 
   Handler string_to(std::string& out, std::set<std::string> allowed = {}) {
     return [this, &out, allowed](const toml::node& n, const std::string& key) {
-      if (!n.is_string()) return fail(n, key, "must be a string");
-      const std::string value = n.as_string()->get();
+      const auto given = string(n, key);
+      if (!given) return;
+      const std::string& value = *given;
       if (!allowed.empty() && allowed.count(value) == 0) {
         std::string list;
         for (const auto& a : allowed) list += (list.empty() ? "" : ", ") + a;
@@ -56,8 +53,9 @@ class Checker {
 
   Handler integer_to(std::int64_t& out, std::int64_t min, std::int64_t max) {
     return [this, &out, min, max](const toml::node& n, const std::string& key) {
-      if (!n.is_integer()) return fail(n, key, "must be an integer");
-      const std::int64_t v = n.as_integer()->get();
+      const auto value = integer(n, key);
+      if (!value) return;
+      const std::int64_t v = *value;
       if (v < min || v > max) {
         return fail(n, key, "must lie between " + std::to_string(min) + " and " + std::to_string(max));
       }
@@ -72,23 +70,6 @@ class Checker {
       integer_to(v, min, max)(n, key);
       if (errors.size() == before) out = static_cast<std::size_t>(v);
     };
-  }
-
-  std::optional<double> number(const toml::node& n, const std::string& key) {
-    double v = 0.0;
-    if (n.is_floating_point()) {
-      v = n.as_floating_point()->get();
-    } else if (n.is_integer()) {
-      v = static_cast<double>(n.as_integer()->get());
-    } else {
-      fail(n, key, "must be a number");
-      return std::nullopt;
-    }
-    if (!std::isfinite(v)) {
-      fail(n, key, "must be finite");
-      return std::nullopt;
-    }
-    return v;
   }
 
   Handler positive_to(double& out) {
@@ -111,8 +92,7 @@ class Checker {
 
   Handler bool_to(bool& out) {
     return [this, &out](const toml::node& n, const std::string& key) {
-      if (!n.is_boolean()) return fail(n, key, "must be true or false");
-      out = n.as_boolean()->get();
+      if (auto v = boolean(n, key)) out = *v;
     };
   }
 

@@ -15,6 +15,7 @@
 
 #include "schema/protocol/codec.hpp"
 #include "schema/protocol/reading.hpp"
+#include "schema/text/toml_keys.hpp"
 #include "drivers/instrument/driver_config.hpp"
 
 namespace lphi::config {
@@ -70,11 +71,9 @@ struct SampleConfig {
   double new_cooldown_above_k = 30.0;
 };
 
-struct ConfigError {
-  std::size_t line = 0;  // 1-based; 0 when the error has no place in the file
-  std::string key;       // dotted, e.g. "sample[2].squares"
-  std::string message;
-};
+// One mistake in a config file: its line (1-based; 0 when the error has no
+// place in the file), the dotted key ("sample[2].squares") and the message.
+using ConfigError = text::TomlError;
 
 }  // namespace lphi::config
 

@@ -2,9 +2,10 @@
 
 #include <algorithm>
 #include <cctype>
-#include <charconv>
 #include <cmath>
 #include <nlohmann/json.hpp>
+
+#include "schema/text/text.hpp"
 
 namespace lphi::drivers {
 namespace {
@@ -18,12 +19,7 @@ constexpr std::array<std::string_view, quantity_count> names = {
 // physical lphi quantity comes near, so anything this large is refused.
 constexpr double scpi_overflow_marker = 9.9e37;
 
-std::string_view trim(std::string_view s) {
-  const auto blank = [](char c) { return c == ' ' || c == '\t' || c == '\r' || c == '\n'; };
-  while (!s.empty() && blank(s.front())) s.remove_prefix(1);
-  while (!s.empty() && blank(s.back())) s.remove_suffix(1);
-  return s;
-}
+using text::trim;
 
 bool iequals(std::string_view a, std::string_view b) {
   return a.size() == b.size() &&
@@ -97,13 +93,8 @@ std::vector<Quantity> required_for(protocol::SourceKind kind) {
 }
 
 std::optional<double> parse_number(std::string_view text) {
-  text = trim(text);
-  if (!text.empty() && text.front() == '+') text.remove_prefix(1);
-  if (text.empty()) return std::nullopt;
-  double value = 0.0;
-  const auto [ptr, ec] =
-      std::from_chars(text.data(), text.data() + text.size(), value, std::chars_format::general);
-  if (ec != std::errc{} || ptr != text.data() + text.size() || !usable(value)) return std::nullopt;
+  const auto value = text::parse_number(text);
+  if (!value || !usable(*value)) return std::nullopt;
   return value;
 }
 

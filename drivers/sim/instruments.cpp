@@ -1,8 +1,11 @@
 #include "drivers/sim/instruments.hpp"
 
+#include <fmt/format.h>
 #include <array>
 #include <cmath>
 #include <cstdio>
+
+#include "schema/text/text.hpp"
 
 namespace lphi::sim {
 namespace {
@@ -83,7 +86,7 @@ std::optional<double> one_number(const scpi::Request& r, scpi::Error& error, boo
     error = scpi::missing_parameter(r.header);
   } else if (r.args.size() > 1) {
     error = scpi::parameter_not_allowed(r.header);
-  } else if (auto v = scpi::parse_number(r.args[0])) {
+  } else if (auto v = text::parse_number(r.args[0])) {
     return v;
   } else {
     error = scpi::data_type_error(r.args[0].substr(0, 40));
@@ -102,9 +105,7 @@ SimInstrument::SimInstrument(Instrument kind, World& world, double speed, double
 std::string SimInstrument::clock_reading(double t_s) const {
   if (clock_origin_s_ == 0.0) return format_number(t_s);
   // An epoch time needs more than %.12g's digits to keep milliseconds.
-  char buf[48];
-  std::snprintf(buf, sizeof buf, "%.6f", clock_origin_s_ + t_s);
-  return buf;
+  return fmt::format("{:.6f}", clock_origin_s_ + t_s);
 }
 
 void SimInstrument::reset() {

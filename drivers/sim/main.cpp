@@ -11,6 +11,7 @@
 #include "drivers/sim/record_file.hpp"
 #include "drivers/sim/scenario_file.hpp"
 #include "drivers/sim/server.hpp"
+#include "schema/text/text.hpp"
 
 namespace {
 
@@ -80,10 +81,9 @@ int main(int argc, char** argv) {
     options.epoch_start_s = std::floor(
         std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count());
   } else if (!epoch_start.empty()) {
-    char* end = nullptr;
-    options.epoch_start_s = std::strtod(epoch_start.c_str(), &end);
-    if (end == epoch_start.c_str() || *end != '\0' || !std::isfinite(options.epoch_start_s) ||
-        options.epoch_start_s <= 0 || options.epoch_start_s > 1e10) {
+    const auto epoch = lphi::text::parse_number(epoch_start);
+    options.epoch_start_s = epoch.value_or(0.0);
+    if (!epoch || options.epoch_start_s <= 0 || options.epoch_start_s > 1e10) {
       std::fprintf(stderr, "lphi-sim: --epoch-start must be \"now\" or a Unix time in (0, 1e10] (got \"%s\")\n",
                    epoch_start.c_str());
       return 2;

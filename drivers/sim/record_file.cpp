@@ -1,5 +1,6 @@
 #include "drivers/sim/record_file.hpp"
 
+#include <fmt/format.h>
 #include <cerrno>
 #include <cstdio>
 #include <cstring>
@@ -61,19 +62,20 @@ std::string write_recording(const Scenario& scenario, const RecordingOptions& op
   std::fputs("time_s,temperature_k,field_t,lockin_x_v,lockin_y_v,lockin_overload\n", csv.get());
   summary = {};
   summary.end_s = recorder.end_s();
+  std::string row_text;
   for (std::int64_t k = 0; k < recorder.rows(); ++k) {
     const RecordedRow r = recorder.row(k);
-    char line[160];
-    int n = std::snprintf(line, sizeof line, "%.12g,", r.t_s);
-    if (r.has_temperature) n += std::snprintf(line + n, sizeof line - static_cast<std::size_t>(n), "%.12g", r.temperature_k);
-    n += std::snprintf(line + n, sizeof line - static_cast<std::size_t>(n), ",%.12g,", r.field_t);
+    row_text.clear();
+    fmt::format_to(std::back_inserter(row_text), "{:.12g},", r.t_s);
+    if (r.has_temperature) fmt::format_to(std::back_inserter(row_text), "{:.12g}", r.temperature_k);
+    fmt::format_to(std::back_inserter(row_text), ",{:.12g},", r.field_t);
     if (r.has_lockin) {
-      std::snprintf(line + n, sizeof line - static_cast<std::size_t>(n), "%.12g,%.12g,%d\n",
-                    r.lockin.x_v, r.lockin.y_v, r.lockin.overload ? 1 : 0);
+      fmt::format_to(std::back_inserter(row_text), "{:.12g},{:.12g},{}\n", r.lockin.x_v, r.lockin.y_v,
+                     r.lockin.overload ? 1 : 0);
     } else {
-      std::snprintf(line + n, sizeof line - static_cast<std::size_t>(n), ",,\n");
+      row_text.append(",,\n");
     }
-    std::fputs(line, csv.get());
+    std::fputs(row_text.c_str(), csv.get());
     ++summary.rows;
     summary.lockin_rows += r.has_lockin ? 1 : 0;
     summary.thermometer_rows += r.has_temperature ? 1 : 0;

@@ -1,25 +1,21 @@
 #include "drivers/sim/recording.hpp"
 
+#include <fmt/format.h>
 #include <cmath>
 #include <cstdio>
 
 namespace lphi::sim {
 
 std::string recording_error(const RecordingOptions& o) {
-  char buf[160];
   if (!std::isfinite(o.rate_hz) || o.rate_hz <= 0 || o.rate_hz > kMaxRecordingRateHz) {
-    std::snprintf(buf, sizeof buf, "--rate-hz must be > 0 and at most %g (got %g)",
-                  kMaxRecordingRateHz, o.rate_hz);
-    return buf;
+    return fmt::format("--rate-hz must be > 0 and at most {:g} (got {:g})", kMaxRecordingRateHz,
+                       o.rate_hz);
   }
   if (o.thermometer_every < 1) {
-    std::snprintf(buf, sizeof buf, "--thermometer-every must be at least 1 (got %lld)",
-                  static_cast<long long>(o.thermometer_every));
-    return buf;
+    return fmt::format("--thermometer-every must be at least 1 (got {})", o.thermometer_every);
   }
   if (!std::isfinite(o.duration_s) || o.duration_s < 0) {
-    std::snprintf(buf, sizeof buf, "--duration-s must be >= 0 (got %g)", o.duration_s);
-    return buf;
+    return fmt::format("--duration-s must be >= 0 (got {:g})", o.duration_s);
   }
   return {};
 }

@@ -4,10 +4,12 @@
 
 #include "analysis/constants.hpp"
 
+#include "schema/protocol/limits.hpp"
+
 namespace lphi::sim {
 namespace {
 
-bool positive(double x) { return std::isfinite(x) && x > 0.0; }
+using protocol::limits::positive;
 
 std::string bad(const char* name, const char* rule, double got) {
   return std::string(name) + " must be " + rule + " (got " + std::to_string(got) + ")";

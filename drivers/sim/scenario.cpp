@@ -1,19 +1,18 @@
 #include "drivers/sim/scenario.hpp"
 
+#include <fmt/format.h>
 #include <cmath>
 #include <cstdio>
+
+#include "schema/protocol/limits.hpp"
 
 namespace lphi::sim {
 namespace {
 
-bool positive(double x) { return std::isfinite(x) && x > 0.0; }
-bool non_negative(double x) { return std::isfinite(x) && x >= 0.0; }
+using protocol::limits::non_negative;
+using protocol::limits::positive;
 
-std::string num(double x) {
-  char buf[32];
-  std::snprintf(buf, sizeof buf, "%g", x);
-  return buf;
-}
+std::string num(double x) { return fmt::format("{:g}", x); }
 
 }  // namespace
 

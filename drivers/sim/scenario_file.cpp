@@ -6,6 +6,8 @@
 #include <sstream>
 #include <toml++/toml.h>
 
+#include "schema/text/toml_keys.hpp"
+
 namespace lphi::sim {
 namespace {
 
@@ -27,41 +29,29 @@ class Reader {
   // Every key of `table` must be one of `allowed`.
   void known_keys(const toml::table& table, const std::string& path,
                   std::initializer_list<std::string_view> allowed) {
-    for (const auto& [key, node] : table) {
-      bool ok = false;
-      for (std::string_view a : allowed) ok = ok || key.str() == a;
-      if (!ok) fail(node.source(), "unknown key '" + path + std::string(key.str()) + "'");
-    }
+    keys_.unknown_keys(table, without_dot(path), allowed);
+    take_error();
   }
 
   void number(const toml::table& t, std::string_view key, const std::string& path, double& out) {
     const toml::node* n = t.get(key);
     if (n == nullptr) return;
-    if (auto v = n->value<double>(); v && (n->is_floating_point() || n->is_integer())) {
-      out = *v;
-      return;
-    }
-    fail(n->source(), "'" + path + std::string(key) + "' must be a number");
+    if (auto v = keys_.number(*n, path + std::string(key))) out = *v;
+    take_error();
   }
 
   void integer(const toml::table& t, std::string_view key, const std::string& path, long long& out) {
     const toml::node* n = t.get(key);
     if (n == nullptr) return;
-    if (auto v = n->value<long long>(); v && n->is_integer()) {
-      out = *v;
-      return;
-    }
-    fail(n->source(), "'" + path + std::string(key) + "' must be an integer");
+    if (auto v = keys_.integer(*n, path + std::string(key))) out = *v;
+    take_error();
   }
 
   void text(const toml::table& t, std::string_view key, const std::string& path, std::string& out) {
     const toml::node* n = t.get(key);
     if (n == nullptr) return;
-    if (auto v = n->value<std::string>(); v && n->is_string()) {
-      out = *v;
-      return;
-    }
-    fail(n->source(), "'" + path + std::string(key) + "' must be a string");
+    if (auto v = keys_.string(*n, path + std::string(key))) out = *v;
+    take_error();
   }
 
   const toml::table* table(const toml::table& t, std::string_view key) {
@@ -89,8 +79,25 @@ class Reader {
   }
 
  private:
+  static std::string_view without_dot(std::string_view path) {
+    if (!path.empty() && path.back() == '.') path.remove_suffix(1);
+    return path;
+  }
+  // The checker's first error in this reader's words: "unknown key 'a.b'",
+  // "'a.b' must be a number".
+  void take_error() {
+    if (errors_.empty()) return;
+    const text::TomlError& e = errors_.front();
+    const std::string message =
+        e.message == "unknown key" ? "unknown key '" + e.key + "'" : "'" + e.key + "' " + e.message;
+    if (!failed()) error_ = origin_ + ":" + std::to_string(e.line) + ": " + message;
+    errors_.clear();
+  }
+
   std::string origin_;
   std::string error_;
+  std::vector<text::TomlError> errors_;
+  text::TomlKeys keys_{errors_};
 };
 
 void read_sample(Reader& r, const toml::table& t, Sample& s) {

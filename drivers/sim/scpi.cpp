@@ -1,18 +1,16 @@
 #include "drivers/sim/scpi.hpp"
 
+#include <fmt/format.h>
 #include <cctype>
-#include <charconv>
 #include <cmath>
 #include <cstdio>
+
+#include "schema/text/text.hpp"
 
 namespace lphi::sim::scpi {
 namespace {
 
-std::string_view trim(std::string_view s) {
-  while (!s.empty() && std::isspace(static_cast<unsigned char>(s.front()))) s.remove_prefix(1);
-  while (!s.empty() && std::isspace(static_cast<unsigned char>(s.back()))) s.remove_suffix(1);
-  return s;
-}
+using text::trim;
 
 std::string upper(std::string_view s) {
   std::string out(s);
@@ -130,19 +128,8 @@ bool matches(std::string_view pattern, const Request& r) {
   return false;
 }
 
-std::optional<double> parse_number(std::string_view text) {
-  text = trim(text);
-  if (!text.empty() && text.front() == '+') text.remove_prefix(1);
-  double v = 0.0;
-  const auto [end, ec] = std::from_chars(text.data(), text.data() + text.size(), v);
-  if (ec != std::errc() || end != text.data() + text.size() || !std::isfinite(v)) return std::nullopt;
-  return v;
-}
-
 std::string format_number(double v) {
-  char buf[40];
-  std::snprintf(buf, sizeof buf, "%.12g", v);
-  return buf;
+  return fmt::format("{:.12g}", v);
 }
 
 }  // namespace lphi::sim::scpi

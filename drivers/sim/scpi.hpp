@@ -63,9 +63,6 @@ std::optional<Request> parse(std::string_view line, Error& error, bool& failed);
 // pattern: "MEASure:ALL", "*IDN", "SYSTem:ERRor".
 bool matches(std::string_view pattern, const Request& r);
 
-// A decimal number (SCPI <NRf>); std::nullopt if it is not one or not finite.
-std::optional<double> parse_number(std::string_view text);
-
 // %.12g, the form every numeric reply uses.
 std::string format_number(double v);
 

@@ -11,6 +11,7 @@
 #include <fstream>
 #include <vector>
 
+#include "drivers/instrument/line_framer.hpp"
 #include "drivers/sim/instruments.hpp"
 #include "drivers/sim/truth_file.hpp"
 
@@ -102,21 +103,17 @@ class Session : public std::enable_shared_from_this<Session> {
                             });
   }
 
+  // Lines are cut by the drivers' own framer (one definition of a line for
+  // both ends of the wire); an over-long one is answered with -223 once.
   void consume(std::size_t n) {
-    for (std::size_t k = 0; k < n && socket_.is_open(); ++k) {
-      const char c = buffer_[k];
-      if (c == '\n') {
-        if (!discarding_) handle(line_);
-        discarding_ = false;
-        line_.clear();
-      } else if (!discarding_) {
-        line_ += c;
-        if (line_.size() > scpi::kMaxLineBytes) {
-          discarding_ = true;
-          line_.clear();
-          send(server_.instruments[index()]->line_too_long());
-        }
-      }
+    framer_.feed(std::string_view(buffer_.data(), n));
+    while (socket_.is_open()) {
+      auto line = framer_.next_line();
+      if (!line) break;
+      handle(*line);
+    }
+    for (std::uint64_t k = framer_.take_overlong(); k > 0 && socket_.is_open(); --k) {
+      send(server_.instruments[index()]->line_too_long());
     }
   }
 
@@ -156,8 +153,7 @@ class Session : public std::enable_shared_from_this<Session> {
   SimServer::Impl& server_;
   Instrument kind_;
   std::array<char, 512> buffer_{};
-  std::string line_;
-  bool discarding_ = false;
+  drivers::LineFramer framer_{"\n", scpi::kMaxLineBytes};
   std::deque<std::string> pending_;
   bool writing_ = false;
 };

@@ -1,5 +1,7 @@
 #include "schema/protocol/codec.hpp"
 
+#include "schema/protocol/limits.hpp"
+
 #include <array>
 #include <cmath>
 #include <limits>
@@ -181,9 +183,7 @@ struct Fields {
   }
 };
 
-// Largest seq accepted: SQLite integers are signed 64-bit, and JSON numbers
-// beyond 2^53 lose precision in many languages' encoders.
-constexpr std::int64_t max_seq = std::int64_t{1} << 53;
+using limits::max_seq;
 
 std::optional<Refusal> read_fields(const json& reading, SourceKind kind, Fields& f) {
   if (!reading.is_object()) {
@@ -255,7 +255,7 @@ std::optional<Refusal> read_fields(const json& reading, SourceKind kind, Fields&
       break;
     case SourceKind::thermometer: {
       const double temperature_k = f.get(Slot::temperature_k);
-      if (!(temperature_k > 0.0 && temperature_k < 1000.0)) {
+      if (!limits::temperature_in_range(temperature_k)) {
         return refuse(Reason::temperature_out_of_range,
                       "temperature_k must lie between 0 and 1000 K");
       }
@@ -263,7 +263,7 @@ std::optional<Refusal> read_fields(const json& reading, SourceKind kind, Fields&
       break;
     }
     case SourceKind::field:
-      if (!(std::fabs(f.get(Slot::field_t)) < 50.0)) {
+      if (!limits::field_in_range(f.get(Slot::field_t))) {
         return refuse(Reason::field_out_of_range, "|field_t| must be below 50 T");
       }
       break;

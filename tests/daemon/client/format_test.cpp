@@ -5,6 +5,7 @@
 // measurements, common practice).
 
 #include <limits>
+#include <sstream>
 
 #include <gtest/gtest.h>
 
@@ -41,6 +42,35 @@ TEST(Format, FieldsInMilliteslaAndTemperaturesInMillikelvin) {
 TEST(Format, NonFiniteValuesAreSpelledOut) {
   EXPECT_EQ(format_number(std::numeric_limits<double>::quiet_NaN()), "nan");
   EXPECT_EQ(format_length(std::numeric_limits<double>::infinity(), 1e-9), "inf um");
+}
+
+// The one table printer: columns as wide as their widest cell, two spaces
+// apart, no blanks at a line's end. The expected text is written out by hand.
+TEST(Table, HeaderTableIsPaddedAndTrimmed) {
+  Table t({"id", "rule", "message"});
+  t.add({"1", "fit-chi2", "chi2_red 12 > 5"});
+  t.add({"10", "gap"});  // a short row is padded with empty cells
+  std::ostringstream out;
+  t.print(out);
+  EXPECT_EQ(out.str(),
+            "id  rule      message\n"
+            "1   fit-chi2  chi2_red 12 > 5\n"
+            "10  gap\n");
+  EXPECT_EQ(t.rows(), 2u);
+}
+
+TEST(Table, LabelValueListIsIndented) {
+  Table t({}, 2);
+  t.add("L_phi", "212.3 nm");
+  t.add("chi2_red", "1.02");
+  std::ostringstream out;
+  t.print(out);
+  EXPECT_EQ(out.str(),
+            "  L_phi     212.3 nm\n"
+            "  chi2_red  1.02\n");
+  std::ostringstream empty;
+  Table({"a"}).print(empty);
+  EXPECT_EQ(empty.str(), "a\n");
 }
 
 }  // namespace
