@@ -1,5 +1,6 @@
 #include "tests/scenarios/live_run.hpp"
 
+#include <fmt/format.h>
 #include <unistd.h>
 
 #include <cmath>
@@ -19,15 +20,10 @@ std::string default_analysis_keys() {
          "max_age_field_s = 5.0\n";
 }
 
-LiveRun::LiveRun() {
-  char pattern[] = "/tmp/lphi-scenario-XXXXXX";
-  const char* made = ::mkdtemp(pattern);
-  dir_ = made != nullptr ? made : "";
-}
+LiveRun::LiveRun() = default;
 
 LiveRun::~LiveRun() {
-  daemon_.reset();  // kills a daemon still running
-  if (!dir_.empty()) std::filesystem::remove_all(dir_);
+  daemon_.reset();  // kills a daemon still running, before the directory goes
 }
 
 bool LiveRun::record(const std::string& scenario_name, double rate_hz,
@@ -35,8 +31,7 @@ bool LiveRun::record(const std::string& scenario_name, double rate_hz,
   const std::string stem = scenario_name.substr(0, scenario_name.find('.'));
   csv_ = file(stem + ".csv");
   const std::string truth_path = file(stem + ".truth.jsonl");
-  char rate[32];
-  std::snprintf(rate, sizeof rate, "%.12g", rate_hz);
+  const std::string rate = fmt::format("{:.12g}", rate_hz);
   std::vector<std::string> args = {LPHI_SIM_PATH,
                                    std::string(LPHI_SOURCE_DIR) + "/drivers/sim/scenarios/" + scenario_name,
                                    "--record", csv_, "--rate-hz", rate, "--truth", truth_path};
@@ -76,11 +71,7 @@ void LiveRun::write_config(const std::string& sample, const std::string& model,
                            const std::string& sample_extra, const std::string& tail) {
   const auto& s = scenario_["sample"];
   const auto& l = scenario_["lockin"];
-  auto num = [](double v) {
-    char buf[40];
-    std::snprintf(buf, sizeof buf, "%.17g", v);
-    return std::string(buf);
-  };
+  auto num = [](double v) { return fmt::format("{:.17g}", v); };
   std::ofstream out(file("lphid.toml"));
   out << "[daemon]\nlog_level = \"info\"\n"
       << "[store]\n" << store_keys_ << "[ingest]\ntime_backward_tolerance_s = 60.0\n"
@@ -140,10 +131,8 @@ RunResult LiveRun::replay(const std::string& csv, const std::string& sample,
                           std::optional<double> start_unix) {
   std::vector<std::string> args = {"replay", csv, "--sample", sample, "--fast"};
   if (start_unix) {
-    char buf[40];
-    std::snprintf(buf, sizeof buf, "%.17g", *start_unix);
     args.push_back("--start-unix");
-    args.push_back(buf);
+    args.push_back(fmt::format("{:.17g}", *start_unix));
   }
   return lphi(args, 240s);
 }
@@ -188,9 +177,7 @@ bool copy_recording(const std::string& from, const std::string& to, double offse
     const auto comma = line.find(',');
     const double t = std::stod(line.substr(0, comma));
     if (t < from_s || t >= to_s) continue;
-    char buf[40];
-    std::snprintf(buf, sizeof buf, "%.12g", t + offset_s);
-    out << buf << line.substr(comma) << '\n';
+    out << fmt::format("{:.12g}", t + offset_s) << line.substr(comma) << '\n';
   }
   return static_cast<bool>(out);
 }

@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "tests/support/daemon_process.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::testing {
 
@@ -32,8 +33,8 @@ class LiveRun {
   LiveRun(const LiveRun&) = delete;
   LiveRun& operator=(const LiveRun&) = delete;
 
-  const std::string& dir() const { return dir_; }
-  std::string file(const std::string& name) const { return dir_ + "/" + name; }
+  const std::string& dir() const { return dir_.path(); }
+  std::string file(const std::string& name) const { return dir_.file(name); }
 
   // lphi-sim drivers/sim/scenarios/NAME --record DIR/NAME.csv --truth ...
   // at `rate_hz`, plus `extra`. Fills truth(); false with the reason in
@@ -76,7 +77,8 @@ class LiveRun {
   const std::string& error() const { return error_; }
 
  private:
-  std::string dir_, data_dir_, csv_, error_;
+  TempDir dir_;
+  std::string data_dir_, csv_, error_;
   std::string store_keys_ = "commit_max_ms = 20\n";
   nlohmann::json scenario_;
   std::vector<nlohmann::json> records_;

@@ -22,6 +22,7 @@
 #include "tests/scenarios/recording_csv.hpp"
 #include "tests/support/daemon_process.hpp"
 #include "tests/support/sim_process.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace {
 
@@ -40,18 +41,7 @@ lphi::sim::Scenario load(const std::string& path) {
   return loaded.scenario.value_or(lphi::sim::Scenario{});
 }
 
-class Dir {
- public:
-  Dir() {
-    char pattern[] = "/tmp/lphi-rec-XXXXXX";
-    path_ = ::mkdtemp(pattern);
-  }
-  ~Dir() { std::filesystem::remove_all(path_); }
-  std::string file(const std::string& name) const { return path_ + "/" + name; }
-
- private:
-  std::string path_;
-};
+using Dir = lphi::testing::TempDir;
 
 lphi::testing::RunResult record(const std::vector<std::string>& args) {
   std::vector<std::string> all = {LPHI_SIM_PATH};

@@ -1,20 +1,10 @@
 #include "tests/support/daemon_process.hpp"
 
-#include <fcntl.h>
 #include <signal.h>
-#include <spawn.h>
-#include <sys/wait.h>
-#include <unistd.h>
 
-#include <fstream>
-#include <sstream>
-#include <thread>
 #include <zmq.hpp>
 
 #include "daemon/config/data_dir.hpp"
-#include "../support/text_file.hpp"
-
-extern char** environ;
 
 namespace lphi::testing {
 
@@ -50,78 +40,31 @@ field = "magnet"
 )toml" + sample_extra + (sample_extra.empty() || sample_extra.back() == '\n' ? "" : "\n") + tail;
 }
 
-namespace {
-
-pid_t spawn(const std::vector<std::string>& args, const std::string& in, const std::string& out,
-            const std::string& err) {
-  posix_spawn_file_actions_t actions;
-  posix_spawn_file_actions_init(&actions);
-  posix_spawn_file_actions_addopen(&actions, 0, in.empty() ? "/dev/null" : in.c_str(), O_RDONLY, 0);
-  posix_spawn_file_actions_addopen(&actions, 1, out.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-  posix_spawn_file_actions_addopen(&actions, 2, err.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-  std::vector<char*> argv;
-  for (const auto& a : args) argv.push_back(const_cast<char*>(a.c_str()));
-  argv.push_back(nullptr);
-  pid_t pid = -1;
-  if (posix_spawn(&pid, argv[0], &actions, nullptr, argv.data(), environ) != 0) pid = -1;
-  posix_spawn_file_actions_destroy(&actions);
-  return pid;
-}
-
-// Waits for pid up to timeout; the exit status, or -1 if it had to be killed.
-int wait_for(pid_t pid, std::chrono::milliseconds timeout) {
-  const auto deadline = Clock::now() + timeout;
-  int status = 0;
-  while (Clock::now() < deadline) {
-    const pid_t r = ::waitpid(pid, &status, WNOHANG);
-    if (r == pid) return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
-    std::this_thread::sleep_for(std::chrono::milliseconds(5));
-  }
-  ::kill(pid, SIGKILL);
-  ::waitpid(pid, &status, 0);
-  return -1;
-}
-
-
-}  // namespace
-
 DaemonProcess::DaemonProcess(std::string data_dir, std::string config_path)
     : data_dir_(std::move(data_dir)), config_path_(std::move(config_path)) {}
 
-DaemonProcess::~DaemonProcess() {
-  if (pid_ > 0) kill_hard();
-}
+DaemonProcess::~DaemonProcess() = default;
 
 bool DaemonProcess::start() {
-  pid_ = spawn({LPHID_PATH, "--data-dir", data_dir_, "--config", config_path_, "--log", "file"}, "",
-               data_dir_ + "/lphid.stdout", data_dir_ + "/lphid.stderr");
-  if (pid_ <= 0) return false;
+  Launch launch;
+  launch.args = {LPHID_PATH, "--data-dir", data_dir_, "--config", config_path_, "--log", "file"};
+  launch.stdout_path = data_dir_ + "/lphid.stdout";
+  launch.stderr_path = data_dir_ + "/lphid.stderr";
+  if (!process_.start(launch)) return false;
   const auto deadline = Clock::now() + std::chrono::seconds(30);
   while (Clock::now() < deadline) {
-    int st = 0;
-    if (::waitpid(pid_, &st, WNOHANG) == pid_) {  // it died on start
-      pid_ = -1;
-      return false;
-    }
+    if (process_.poll()) return false;  // it died on start
     if (status(std::chrono::milliseconds(200))) return true;
   }
   return false;
 }
 
-void DaemonProcess::kill_hard() {
-  if (pid_ <= 0) return;
-  ::kill(pid_, SIGKILL);
-  int st = 0;
-  ::waitpid(pid_, &st, 0);
-  pid_ = -1;
-}
+void DaemonProcess::kill_hard() { process_.kill_hard(); }
 
 int DaemonProcess::stop() {
-  if (pid_ <= 0) return -1;
-  ::kill(pid_, SIGTERM);
-  const int rc = wait_for(pid_, std::chrono::seconds(30));
-  pid_ = -1;
-  return rc;
+  if (!process_.running()) return -1;
+  process_.signal(SIGTERM);
+  return process_.wait(std::chrono::seconds(30));
 }
 
 std::optional<nlohmann::json> DaemonProcess::status(std::chrono::milliseconds timeout) const {
@@ -141,18 +84,10 @@ std::optional<nlohmann::json> DaemonProcess::status(std::chrono::milliseconds ti
 
 RunResult run_program(const std::vector<std::string>& args, const std::string& stdin_path,
                       std::chrono::seconds timeout) {
-  char out_name[] = "/tmp/lphi-out-XXXXXX";
-  char err_name[] = "/tmp/lphi-err-XXXXXX";
-  ::close(::mkstemp(out_name));
-  ::close(::mkstemp(err_name));
-  RunResult r;
-  const pid_t pid = spawn(args, stdin_path, out_name, err_name);
-  if (pid > 0) r.exit_code = wait_for(pid, timeout);
-  r.out = read_text_file(out_name);
-  r.err = read_text_file(err_name);
-  ::unlink(out_name);
-  ::unlink(err_name);
-  return r;
+  Launch launch;
+  launch.args = args;
+  launch.stdin_path = stdin_path;
+  return run_program(launch, timeout);
 }
 
 }  // namespace lphi::testing

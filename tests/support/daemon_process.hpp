@@ -1,14 +1,16 @@
-// Runs the real lphid (and lphi) as child processes for integration tests.
-// Every wait is bounded; readiness is polled on the control socket.
+// Runs the real lphid (and lphi) as child processes for integration tests: a
+// thin layer on ChildProcess (child_process.hpp) that knows lphid's
+// arguments and its readiness. Every wait is bounded; readiness is polled on
+// the control socket. Not thread-safe: one object per test thread.
 #pragma once
-
-#include <sys/types.h>
 
 #include <chrono>
 #include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
 #include <vector>
+
+#include "tests/support/child_process.hpp"
 
 namespace lphi::testing {
 
@@ -29,21 +31,18 @@ class DaemonProcess {
   void kill_hard();  // SIGKILL, then reap
   // SIGTERM and wait for a clean exit; returns the exit status (-1 on timeout).
   int stop();
-  bool running() const { return pid_ > 0; }
+  bool running() const { return process_.running(); }
   std::optional<nlohmann::json> status(std::chrono::milliseconds timeout) const;
 
  private:
   std::string data_dir_, config_path_;
-  pid_t pid_ = -1;
+  ChildProcess process_;
 };
 
-struct RunResult {
-  int exit_code = -1;  // -1: killed after the timeout
-  std::string out;
-  std::string err;
-};
+using RunResult = ProgramResult;
 
-// Runs a program with stdin from a file ("" for /dev/null), capturing output.
+// Runs a program with stdin from a file ("" for /dev/null), capturing output
+// (child_process.hpp's run_program with these three arguments).
 RunResult run_program(const std::vector<std::string>& args, const std::string& stdin_path,
                       std::chrono::seconds timeout);
 

@@ -1,35 +1,16 @@
-// Runs a program as a child process with stdin, stdout and stderr redirected
-// to files in a private temporary directory, and waits for it.
+// Runs a program to its end with a text as its standard input and captures
+// its output: the short form of child_process.hpp's run_program for the
+// client's command-line tests. Waits at most ten minutes (a hung program is
+// killed and reported with exit code -1, it does not hang the test run).
 #pragma once
 
-#include <filesystem>
 #include <string>
 #include <vector>
 
+#include "tests/support/child_process.hpp"
+#include "tests/support/temp_dir.hpp"
+
 namespace lphi::testing {
-
-// A fresh directory under the system's temporary directory, removed with its
-// contents when the object goes away.
-class TempDir {
- public:
-  TempDir();
-  ~TempDir();
-  TempDir(const TempDir&) = delete;
-  TempDir& operator=(const TempDir&) = delete;
-
-  const std::filesystem::path& path() const { return path_; }
-  // Writes text to a file in the directory and returns its full path.
-  std::string write(const std::string& name, const std::string& text) const;
-
- private:
-  std::filesystem::path path_;
-};
-
-struct ProgramResult {
-  int exit_code = -1;  // -1: did not exit normally (killed by a signal)
-  std::string out;
-  std::string err;
-};
 
 // Runs `program args...` with stdin_text as its standard input.
 ProgramResult run_program(const std::string& program, const std::vector<std::string>& args,

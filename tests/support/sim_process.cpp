@@ -5,30 +5,22 @@
 #include <netinet/in.h>
 #include <poll.h>
 #include <signal.h>
-#include <spawn.h>
 #include <sys/socket.h>
-#include <sys/wait.h>
 #include <unistd.h>
 
 #include <cerrno>
 #include <cmath>
-#include <cstdlib>
-#include <filesystem>
-#include <fstream>
 #include <nlohmann/json.hpp>
 #include <sstream>
 #include <thread>
 
-#include "../support/text_file.hpp"
-
-extern char** environ;
+#include "schema/text/text.hpp"
 
 namespace lphi::testing {
 
 using Clock = std::chrono::steady_clock;
 
 namespace {
-
 
 int remaining_ms(Clock::time_point deadline) {
   const auto left = std::chrono::duration_cast<std::chrono::milliseconds>(deadline - Clock::now());
@@ -37,52 +29,25 @@ int remaining_ms(Clock::time_point deadline) {
 
 }  // namespace
 
-SimProcess::SimProcess() {
-  char name[] = "/tmp/lphi-sim-test-XXXXXX";
-  const char* made = ::mkdtemp(name);
-  dir_ = made != nullptr ? made : "";
-}
-
-SimProcess::~SimProcess() {
-  if (pid_ > 0) {
-    ::kill(pid_, SIGKILL);
-    int st = 0;
-    ::waitpid(pid_, &st, 0);
-  }
-  std::error_code ec;
-  if (!dir_.empty()) std::filesystem::remove_all(dir_, ec);
-}
+SimProcess::SimProcess() = default;
+SimProcess::~SimProcess() = default;  // the process is killed before the directory goes
 
 std::string SimProcess::write_file(const std::string& name, const std::string& text) const {
-  const std::string path = dir_ + "/" + name;
-  std::ofstream(path) << text;
-  return path;
+  return dir_.write(name, text);
 }
 
 bool SimProcess::start(const std::string& scenario_path, const std::vector<std::string>& extra) {
-  std::vector<std::string> args = {LPHI_SIM_PATH, scenario_path, "--ports-file", dir_ + "/ports.json",
-                                   "--truth", truth_path()};
-  args.insert(args.end(), extra.begin(), extra.end());
-  posix_spawn_file_actions_t actions;
-  posix_spawn_file_actions_init(&actions);
-  posix_spawn_file_actions_addopen(&actions, 0, "/dev/null", O_RDONLY, 0);
-  const std::string out = dir_ + "/stdout", err = dir_ + "/stderr";
-  posix_spawn_file_actions_addopen(&actions, 1, out.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-  posix_spawn_file_actions_addopen(&actions, 2, err.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-  std::vector<char*> argv;
-  for (auto& a : args) argv.push_back(a.data());
-  argv.push_back(nullptr);
-  if (posix_spawn(&pid_, argv[0], &actions, nullptr, argv.data(), environ) != 0) pid_ = -1;
-  posix_spawn_file_actions_destroy(&actions);
-  if (pid_ <= 0) return false;
+  Launch launch;
+  launch.args = {LPHI_SIM_PATH, scenario_path, "--ports-file", dir_.file("ports.json"),
+                 "--truth", truth_path()};
+  launch.args.insert(launch.args.end(), extra.begin(), extra.end());
+  launch.stdout_path = dir_.file("stdout");
+  launch.stderr_path = dir_.file("stderr");
+  if (!process_.start(launch)) return false;
   const auto deadline = Clock::now() + std::chrono::seconds(20);
   while (Clock::now() < deadline) {
-    int st = 0;
-    if (::waitpid(pid_, &st, WNOHANG) == pid_) {
-      pid_ = -1;
-      return false;
-    }
-    const auto j = nlohmann::json::parse(read_text_file(dir_ + "/ports.json"), nullptr, false);
+    if (process_.poll()) return false;
+    const auto j = nlohmann::json::parse(read_text_file(dir_.file("ports.json")), nullptr, false);
     if (j.is_object() && j.contains("magnet")) {
       ports_[0] = j["lockin"];
       ports_[1] = j["thermometer"];
@@ -100,30 +65,15 @@ int SimProcess::port(const std::string& instrument) const {
   return ports_[2];
 }
 
-int SimProcess::wait(std::chrono::milliseconds timeout) {
-  if (pid_ <= 0) return -1;
-  const auto deadline = Clock::now() + timeout;
-  int status = 0;
-  while (Clock::now() < deadline) {
-    if (::waitpid(pid_, &status, WNOHANG) == pid_) {
-      pid_ = -1;
-      return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
-    }
-    std::this_thread::sleep_for(std::chrono::milliseconds(5));
-  }
-  ::kill(pid_, SIGKILL);
-  ::waitpid(pid_, &status, 0);
-  pid_ = -1;
-  return -1;
-}
+int SimProcess::wait(std::chrono::milliseconds timeout) { return process_.wait(timeout); }
 
 int SimProcess::stop() {
-  if (pid_ <= 0) return -1;
-  ::kill(pid_, SIGTERM);
+  if (!process_.running()) return -1;
+  process_.signal(SIGTERM);
   return wait(std::chrono::seconds(10));
 }
 
-std::string SimProcess::stderr_text() const { return read_text_file(dir_ + "/stderr"); }
+std::string SimProcess::stderr_text() const { return read_text_file(dir_.file("stderr")); }
 
 LineClient::~LineClient() { close(); }
 
@@ -215,11 +165,7 @@ std::vector<double> fields(const std::string& reply) {
   std::vector<double> out;
   std::stringstream s(reply);
   std::string f;
-  while (std::getline(s, f, ',')) {
-    char* end = nullptr;
-    const double v = std::strtod(f.c_str(), &end);
-    out.push_back(end != f.c_str() && *end == '\0' ? v : std::nan(""));
-  }
+  while (std::getline(s, f, ',')) out.push_back(text::parse_number(f).value_or(std::nan("")));
   return out;
 }
 

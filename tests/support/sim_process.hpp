@@ -1,13 +1,16 @@
-// The real lphi-sim process for integration tests, and a small line-based
-// TCP client. Every wait is bounded; readiness is the ports file appearing.
+// The real lphi-sim process for integration tests, a thin layer on
+// ChildProcess (child_process.hpp) that knows lphi-sim's arguments and its
+// readiness (the ports file appearing), and a small line-based TCP client.
+// Every wait is bounded. Not thread-safe: one object per test thread.
 #pragma once
-
-#include <sys/types.h>
 
 #include <chrono>
 #include <optional>
 #include <string>
 #include <vector>
+
+#include "tests/support/child_process.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::testing {
 
@@ -18,7 +21,7 @@ class SimProcess {
   SimProcess(const SimProcess&) = delete;
   SimProcess& operator=(const SimProcess&) = delete;
 
-  const std::string& dir() const { return dir_; }
+  const std::string& dir() const { return dir_.path(); }
   std::string write_file(const std::string& name, const std::string& text) const;
 
   // Starts lphi-sim SCENARIO --ports-file DIR/ports.json --truth DIR/truth.jsonl
@@ -30,12 +33,12 @@ class SimProcess {
   // or -1 (then it is killed).
   int wait(std::chrono::milliseconds timeout);
   int stop();  // SIGTERM, then wait up to 10 s
-  std::string truth_path() const { return dir_ + "/truth.jsonl"; }
+  std::string truth_path() const { return dir_.file("truth.jsonl"); }
   std::string stderr_text() const;
 
  private:
-  std::string dir_;
-  pid_t pid_ = -1;
+  TempDir dir_;
+  ChildProcess process_;
   int ports_[3] = {0, 0, 0};
 };
 

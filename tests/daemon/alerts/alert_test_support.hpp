@@ -11,7 +11,7 @@
 #include <gtest/gtest.h>
 
 #include "daemon/alerts/alert_engine.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::alerts::testing {
 

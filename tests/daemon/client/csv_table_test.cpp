@@ -168,13 +168,13 @@ TEST(ParseNumber, LongCellIsShortenedInTheMessage) {
 TEST(ReadTextInput, MissingFileAndDirectoryAreNamed) {
   lphi::testing::TempDir dir;
   std::string text;
-  const std::string missing = (dir.path() / "no-such.csv").string();
+  const std::string missing = dir.file("no-such.csv");
   const Status s = read_text_input(missing, text);
   EXPECT_FALSE(s.ok());
   EXPECT_THAT(s.message(), HasSubstr(missing));
   EXPECT_THAT(s.message(), HasSubstr("No such file"));
 
-  const Status d = read_text_input(dir.path().string(), text);
+  const Status d = read_text_input(dir.path(), text);
   EXPECT_FALSE(d.ok());
   EXPECT_THAT(d.message(), HasSubstr("is a directory"));
 }

@@ -316,7 +316,7 @@ std::string small_sweep(int n, const std::string& signal_column = "rsq_ohm") {
 
 TEST(LphiFitBadInput, MissingFile) {
   TempDir dir;
-  const std::string path = (dir.path() / "absent.csv").string();
+  const std::string path = dir.file("absent.csv");
   expect_bad_input(lphi_run({"fit", path}), {path, "cannot open"});
 }
 

@@ -57,7 +57,7 @@ std::string make_dir(const std::filesystem::path& path) {
 struct Daemon {
   lphi::testing::TempDir dir;
   // lphid's output goes to files inside the data directory: it must exist.
-  std::string data_dir = make_dir(dir.path() / "data");
+  std::string data_dir = make_dir(dir.file("data"));
   lphi::testing::DaemonProcess process{data_dir, dir.write("lphid.toml", config_text())};
 };
 
@@ -79,13 +79,13 @@ TEST(LiveCommands, UnreachableDaemonExitsThreeWithinTheTimeout) {
   lphi::testing::TempDir dir;  // no lphid has ever run here
   const auto started = std::chrono::steady_clock::now();
   for (const char* command : {"sweeps", "fits", "verdict", "alerts"}) {
-    const auto r = lphi_cli({command, "--data-dir", dir.path().string(), "--timeout-s", "0.3"}, 20s);
+    const auto r = lphi_cli({command, "--data-dir", dir.path(), "--timeout-s", "0.3"}, 20s);
     EXPECT_EQ(r.exit_code, 3) << command << ": " << r.err;
     EXPECT_THAT(r.err, HasSubstr("lphid does not answer"));
   }
-  const auto w = lphi_cli({"watch", "--data-dir", dir.path().string(), "--connect-timeout-s", "0.3"}, 20s);
+  const auto w = lphi_cli({"watch", "--data-dir", dir.path(), "--connect-timeout-s", "0.3"}, 20s);
   EXPECT_EQ(w.exit_code, 3) << w.err;
-  const auto a = lphi_cli({"ack", "1", "--data-dir", dir.path().string(), "--timeout-s", "0.3"}, 20s);
+  const auto a = lphi_cli({"ack", "1", "--data-dir", dir.path(), "--timeout-s", "0.3"}, 20s);
   EXPECT_EQ(a.exit_code, 3) << a.err;
   // Each waited about 0.3 s; 20 s for all six leaves room for a slow machine.
   EXPECT_LT(std::chrono::steady_clock::now() - started, 20s);
@@ -144,12 +144,20 @@ TEST(LiveCommands, ReplayThenReadBackEveryView) {
   std::size_t rows = 0;
   const auto csv = recording_file(d.dir, &rows);
 
-  // A watcher, subscribed before the replay: it must see fits and sweeps.
-  auto watcher = std::async(std::launch::async, [&] {
-    return lphi_cli({"watch", "--json", "--count", "4", "--topics", "fit,sweep", "--timeout-s", "100",
-                     "--data-dir", d.data_dir});
-  });
-  std::this_thread::sleep_for(1500ms);  // a SUB socket misses what is published before it joins
+  // A watcher, subscribed before the replay: it must see fits and sweeps. A
+  // SUB socket misses what is published before it joins, so the replay starts
+  // once the watcher says it has joined (bounded wait, not a fixed pause).
+  lphi::testing::ChildProcess watcher;
+  lphi::testing::Launch watch;
+  watch.args = {LPHI_CLI_PROGRAM, "watch", "--json", "--count", "4", "--topics", "fit,sweep", "--timeout-s",
+                "100", "--data-dir", d.data_dir};
+  ASSERT_TRUE(watcher.start(watch));
+  const auto joined_by = std::chrono::steady_clock::now() + 30s;
+  while (watcher.stderr_text().find("watching lphid's events") == std::string::npos) {
+    ASSERT_LT(std::chrono::steady_clock::now(), joined_by) << "lphi watch never joined: " << watcher.stderr_text();
+    ASSERT_TRUE(watcher.running()) << watcher.stderr_text();
+    std::this_thread::sleep_for(10ms);  // polling a file for a condition
+  }
 
   const auto r = replay(d, csv);
   ASSERT_EQ(r.exit_code, 0) << r.out << r.err;
@@ -230,7 +238,10 @@ TEST(LiveCommands, ReplayThenReadBackEveryView) {
   }
   EXPECT_TRUE(acknowledged) << after.dump(1);
 
-  const auto watched = watcher.get();
+  lphi::testing::ProgramResult watched;
+  watched.exit_code = watcher.wait(120s);
+  watched.out = watcher.stdout_text();
+  watched.err = watcher.stderr_text();
   EXPECT_EQ(watched.exit_code, 0) << watched.err;
   std::size_t lines = 0;
   for (std::size_t from = 0; from < watched.out.size();) {

@@ -13,7 +13,8 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstdio>
+#include <fmt/format.h>
+#include <iterator>
 #include <string>
 #include <vector>
 
@@ -52,17 +53,16 @@ inline std::string make_recording_csv(const RecordingPlan& plan, std::size_t* ro
   std::size_t k = 0;
   double field = -plan.max_field_t;
   double rsq = plan.rsq_ohm;
-  char line[256];
   auto emit = [&](double temperature_k) {
     const double x = rsq * plan.squares * plan.excitation_a * plan.gain;
     const double t = static_cast<double>(k) * plan.dt_s;
     if (k % static_cast<std::size_t>(plan.thermometer_every) == 0) {
-      std::snprintf(line, sizeof line, "%.1f,%.6g,%.9g,%.12g,%.12g,%g\n", t, temperature_k, field, x, x / 100.0,
-                    plan.time_constant_s);
+      fmt::format_to(std::back_inserter(csv), "{:.1f},{:.6g},{:.9g},{:.12g},{:.12g},{:g}\n", t, temperature_k, field,
+                     x, x / 100.0, plan.time_constant_s);
     } else {
-      std::snprintf(line, sizeof line, "%.1f,,%.9g,%.12g,%.12g,%g\n", t, field, x, x / 100.0, plan.time_constant_s);
+      fmt::format_to(std::back_inserter(csv), "{:.1f},,{:.9g},{:.12g},{:.12g},{:g}\n", t, field, x, x / 100.0,
+                     plan.time_constant_s);
     }
-    csv += line;
     ++k;
   };
   auto hold = [&](double seconds, double from_k, double to_k) {

@@ -12,7 +12,7 @@
 
 #include "daemon/control/control_server.hpp"
 #include "daemon/health/failed_parts.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace {
 

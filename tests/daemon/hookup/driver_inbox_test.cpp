@@ -12,7 +12,7 @@
 #include "daemon/ingest/ingest_server.hpp"
 #include "daemon/store/database.hpp"
 #include "daemon/store/writer.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::ingest {
 namespace {

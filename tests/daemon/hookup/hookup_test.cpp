@@ -18,6 +18,7 @@
 
 #include "tests/daemon/hookup/store_export.hpp"
 #include "tests/support/daemon_process.hpp"
+#include "tests/support/wall_clock.hpp"
 #include "tests/support/sim_process.hpp"
 
 namespace lphi::testing {
@@ -26,10 +27,6 @@ namespace {
 using namespace std::chrono_literals;
 using nlohmann::json;
 using Clock = std::chrono::steady_clock;
-
-double unix_now() {
-  return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
-}
 
 // One [[source]] with a scpi-tcp driver asking MEAS:ALL? (reply layout from
 // drivers/sim/COMMANDS.md; field 0 is the instrument's time).

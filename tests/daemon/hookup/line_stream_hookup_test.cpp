@@ -24,6 +24,8 @@
 
 #include "tests/daemon/hookup/store_export.hpp"
 #include "tests/support/daemon_process.hpp"
+#include "tests/support/wall_clock.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::testing {
 namespace {
@@ -31,10 +33,6 @@ namespace {
 using namespace std::chrono_literals;
 using nlohmann::json;
 using Clock = std::chrono::steady_clock;
-
-double unix_now() {
-  return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
-}
 
 // A file descriptor that closes itself.
 struct Fd {
@@ -129,9 +127,8 @@ std::uint64_t accepted(const json& status, const std::string& source) {
 }
 
 TEST(LineStreamHookup, ConnectAndListenModesStoreWhatTheInstrumentsPush) {
-  char tmpl[] = "/tmp/lphi-linestream-XXXXXX";
-  ASSERT_NE(::mkdtemp(tmpl), nullptr);
-  const std::string dir = tmpl;
+  const lphi::testing::TempDir temp;
+  const std::string& dir = temp.path();
   const std::string data_dir = dir + "/data";
   ASSERT_EQ(::mkdir(data_dir.c_str(), 0700), 0);
 

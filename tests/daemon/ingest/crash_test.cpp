@@ -17,7 +17,7 @@
 #include "daemon/store/reader.hpp"
 #include "tests/support/daemon_process.hpp"
 #include "drivers/sender/sender.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::testing {
 namespace {

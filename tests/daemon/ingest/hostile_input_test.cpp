@@ -14,7 +14,8 @@
 #include "schema/protocol/codec.hpp"
 #include "daemon/store/reader.hpp"
 #include "tests/support/daemon_process.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/wall_clock.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::testing {
 namespace {
@@ -25,9 +26,7 @@ using protocol::Reason;
 std::string msgpack(const json& j) { return protocol::encode_frame(j, protocol::Encoding::msgpack); }
 std::string text(const json& j) { return j.dump(); }
 
-double now_s() {
-  return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
-}
+double now_s() { return lphi::testing::unix_now(); }
 
 json good_lockin(std::int64_t seq) { return {{"seq", seq}, {"t", now_s()}, {"x_v", 1e-6}, {"y_v", 0.0}}; }
 

@@ -9,7 +9,7 @@
 
 #include "schema/protocol/codec.hpp"
 #include "tests/support/daemon_process.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::testing {
 namespace {

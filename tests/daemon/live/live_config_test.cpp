@@ -8,7 +8,7 @@
 #include "daemon/config/config.hpp"
 #include "daemon/config/data_dir.hpp"
 #include "daemon/live/live_analysis.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace {
 

@@ -14,9 +14,10 @@
 
 #include "daemon/config/data_dir.hpp"
 #include "drivers/sender/sender.hpp"
+#include "daemon/client/control_request.hpp"
 #include "tests/support/daemon_process.hpp"
 #include "tests/daemon/live/synthetic_cooldown.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace {
 
@@ -76,10 +77,12 @@ zmq::socket_t subscribe(zmq::context_t& context, const std::string& dir) {
   zmq::socket_t sub(context, zmq::socket_type::sub);
   sub.set(zmq::sockopt::linger, 0);
   sub.set(zmq::sockopt::subscribe, "");
-  sub.connect(lphi::config::client_endpoints(dir).events);
   // A subscription takes a moment to reach the publisher (ZeroMQ's "slow
-  // joiner"); messages published before that are not delivered.
-  std::this_thread::sleep_for(300ms);
+  // joiner"); messages published before that are not delivered. Wait for the
+  // handshake (after which the SUB sends its subscription), with a bound.
+  EXPECT_TRUE(lphi::client::connect_and_wait_for_handshake(context, sub, lphi::config::client_endpoints(dir).events,
+                                                           10s))
+      << "the event socket never completed its handshake";
   return sub;
 }
 

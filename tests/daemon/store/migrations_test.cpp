@@ -3,7 +3,7 @@
 #include <gtest/gtest.h>
 
 #include "daemon/store/migrations.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::store {
 namespace {

@@ -10,7 +10,7 @@
 
 #include "daemon/store/reader.hpp"
 #include "daemon/store/writer.hpp"
-#include "tests/support/test_dir.hpp"
+#include "tests/support/temp_dir.hpp"
 
 namespace lphi::store {
 namespace {

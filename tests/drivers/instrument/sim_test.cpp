@@ -3,22 +3,15 @@
 // configured only through ScpiTcpConfig, as lphid will do.
 #include <gtest/gtest.h>
 
-#include <signal.h>
-#include <spawn.h>
-#include <sys/wait.h>
-#include <unistd.h>
-
 #include <cmath>
-#include <filesystem>
-#include <fstream>
 #include <nlohmann/json.hpp>
 #include <thread>
 
 #include "tests/drivers/instrument/collector.hpp"
 #include "drivers/instrument/scpi_tcp_driver.hpp"
 #include "tests/drivers/instrument/script_server.hpp"
+#include "tests/support/sim_process.hpp"
 
-extern char** environ;
 
 namespace lphi::drivers {
 namespace {
@@ -26,49 +19,6 @@ namespace {
 using namespace std::chrono_literals;
 using testing::Collector;
 using testing::run_until;
-
-class SimProcess {
- public:
-  SimProcess() {
-    dir_ = std::filesystem::temp_directory_path() / ("lphi-drivers-sim-" + std::to_string(::getpid()));
-    std::filesystem::create_directories(dir_);
-    ports_ = dir_ / "ports.json";
-    const std::string scenario = std::string(LPHI_SOURCE_DIR) + "/drivers/sim/scenarios/saturation.toml";
-    std::vector<std::string> args = {LPHI_SIM_PATH, scenario, "--speed", "50", "--hold",
-                                     "--ports-file", ports_.string()};
-    std::vector<char*> argv;
-    for (auto& a : args) argv.push_back(a.data());
-    argv.push_back(nullptr);
-    if (::posix_spawn(&pid_, LPHI_SIM_PATH, nullptr, nullptr, argv.data(), environ) != 0) pid_ = -1;
-  }
-  ~SimProcess() {
-    if (pid_ > 0) {
-      ::kill(pid_, SIGTERM);
-      int status = 0;
-      ::waitpid(pid_, &status, 0);
-    }
-    std::error_code ignored;
-    std::filesystem::remove_all(dir_, ignored);
-  }
-  // The ports lphi-sim chose, once it has written them (bounded wait: the
-  // file appears by rename, so it is either absent or complete).
-  std::optional<nlohmann::json> ports() const {
-    const auto deadline = std::chrono::steady_clock::now() + 10s;
-    while (std::chrono::steady_clock::now() < deadline) {
-      std::ifstream in(ports_);
-      if (in) return nlohmann::json::parse(in, nullptr, false);
-      int status = 0;
-      if (pid_ <= 0 || ::waitpid(pid_, &status, WNOHANG) == pid_) return std::nullopt;
-      std::this_thread::sleep_for(10ms);  // polling a file, not timing the drivers
-    }
-    return std::nullopt;
-  }
-  bool running() const { return pid_ > 0; }
-
- private:
-  std::filesystem::path dir_, ports_;
-  pid_t pid_ = -1;
-};
 
 ScpiTcpConfig sim_config(std::string source, protocol::SourceKind kind, int port,
                          std::vector<FieldMap> fields) {
@@ -85,10 +35,12 @@ ScpiTcpConfig sim_config(std::string source, protocol::SourceKind kind, int port
 }
 
 TEST(DriversAgainstSim, PollLockinThermometerAndMagnet) {
-  SimProcess sim;
-  ASSERT_TRUE(sim.running());
-  const auto ports = sim.ports();
-  ASSERT_TRUE(ports && ports->is_object()) << "lphi-sim wrote no ports file";
+  // lphi-sim at 50 times real time, held after its programme; started by the
+  // tests' one launcher, which waits (bounded) for its ports file.
+  lphi::testing::SimProcess sim;
+  ASSERT_TRUE(sim.start(std::string(LPHI_SOURCE_DIR) + "/drivers/sim/scenarios/saturation.toml",
+                        {"--speed", "50", "--hold"}))
+      << "lphi-sim did not start: " << sim.stderr_text();
   boost::asio::io_context io;
   Collector<protocol::LockinReading> lockin;
   Collector<protocol::ThermometerReading> thermometer;
@@ -107,13 +59,13 @@ TEST(DriversAgainstSim, PollLockinThermometerAndMagnet) {
   using K = protocol::SourceKind;
   // MEASure:ALL? replies (COMMANDS.md): lock-in <t>,<x_v>,<y_v>,<overload>;
   // thermometer <t>,<temperature_k>,<resistance_ohm>; magnet <t>,<field_t>,...
-  auto l = make(sim_config("sim-lockin", K::lockin, (*ports)["lockin"].get<int>(),
+  auto l = make(sim_config("sim-lockin", K::lockin, sim.port("lockin"),
                            {{1, "", "x_v", 1.0}, {2, "", "y_v", 1.0}, {3, "", "overload", 1.0}}),
                 lockin.sink());
-  auto t = make(sim_config("sim-thermometer", K::thermometer, (*ports)["thermometer"].get<int>(),
+  auto t = make(sim_config("sim-thermometer", K::thermometer, sim.port("thermometer"),
                            {{1, "", "temperature_k", 1.0}, {2, "", "resistance_ohm", 1.0}}),
                 thermometer.sink());
-  auto m = make(sim_config("sim-magnet", K::field, (*ports)["magnet"].get<int>(), {{1, "", "field_t", 1.0}}),
+  auto m = make(sim_config("sim-magnet", K::field, sim.port("magnet"), {{1, "", "field_t", 1.0}}),
                 magnet.sink());
   ASSERT_TRUE(l && t && m);
   ASSERT_TRUE(run_until(io, [&] {
