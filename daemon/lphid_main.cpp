@@ -179,7 +179,9 @@ int serve(const std::string& dir_option, const std::string& config_option, const
   io.endpoints.events = events->endpoint();
   if (auto e = lphi::config::restrict_ipc_endpoint(io.endpoints.events)) spdlog::warn("{}", *e);
   std::unique_ptr<lphi::alerts::AlertEngine> engine;
-  if (auto s = lphi::alerts::AlertEngine::create(config.alerts, lphi::store::database_path(dir), events.get(),
+  // After the writer applied the migrations: the engine reads the live
+  // alerts on a read-only connection and writes through the writer.
+  if (auto s = lphi::alerts::AlertEngine::create(config.alerts, *writer, lphi::store::database_path(dir), events.get(),
                                                   engine);
       !s) {
     return fail(s.message());
@@ -221,7 +223,10 @@ int serve(const std::string& dir_option, const std::string& config_option, const
     control->add_handler(type, [&queries](const nlohmann::json& r) { return queries->handle_request(r); });
   }
   for (const char* type : {"alerts", "ack"}) {
-    control->add_handler(type, [&engine](const nlohmann::json& r) { return engine->handle_request(r); });
+    // An ack is answered once it is durable, without blocking the control socket.
+    control->add_deferred_handler(type, [&engine](const nlohmann::json& r, lphi::control::Reply reply) {
+      engine->handle_request(r, [reply](nlohmann::json answer) { reply.send(answer); });
+    });
   }
 
   if (auto e = lphi::config::write_endpoints_file(dir, io.endpoints)) spdlog::warn("{}", *e);

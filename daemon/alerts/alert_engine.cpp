@@ -3,6 +3,9 @@
 #include <algorithm>
 #include <chrono>
 #include <cmath>
+#include <condition_variable>
+#include <deque>
+#include <future>
 #include <map>
 #include <mutex>
 #include <utility>
@@ -13,6 +16,7 @@
 #include "daemon/alerts/alert_store.hpp"
 #include "daemon/alerts/event_publisher.hpp"
 #include "daemon/alerts/hook_runner.hpp"
+#include "daemon/store/writer.hpp"
 #include "schema/protocol/codec.hpp"
 
 namespace lphi::alerts {
@@ -104,6 +108,28 @@ json alert_json(const Alert& a) {
           {"context", a.context.is_null() ? json::object() : a.context}};
 }
 
+// What the store writer's completions share with the engine. Held by
+// shared_ptr so that a completion arriving after the engine is gone is safe.
+struct WriteTracker {
+  std::mutex mutex;
+  std::condition_variable settled;
+  std::size_t in_flight = 0;        // submitted, completion not yet run
+  std::uint64_t store_errors = 0;
+  // Cleared alerts whose clear is not durable yet: `alerts --all` shows them
+  // as they are, not as the database still has them.
+  std::map<std::int64_t, Alert> clearing;
+};
+
+// One store write: a task for the writer thread, and what to do when it is
+// durable (or refused).
+struct PendingWrite {
+  std::int64_t alert_id = 0;
+  std::string what;  // for the log: "raised", "good_count", ...
+  std::function<Status(store::Database&)> task;
+  std::function<void(const Status&)> done;  // optional; runs on the writer thread
+  bool clears = false;
+};
+
 struct AlertEngine::Impl {
   struct SourceTrack {
     double first_seen = 0.0;
@@ -113,9 +139,11 @@ struct AlertEngine::Impl {
   using Key = std::pair<std::string, std::string>;  // rule, subject
 
   AlertConfig config;
-  AlertStore store;
+  AlertStore store;  // reads only
+  store::StoreWriter* writer = nullptr;
   EventPublisher* events = nullptr;
   std::unique_ptr<HookRunner> hook;
+  std::shared_ptr<WriteTracker> tracker = std::make_shared<WriteTracker>();
 
   std::mutex mutex;
   std::map<Key, StoredAlert> live;
@@ -123,13 +151,104 @@ struct AlertEngine::Impl {
   std::map<std::string, SourceTrack> sources;
   std::int64_t next_id = 1;
   Counters counters;
+  std::deque<PendingWrite> pending;  // refused by the writer's queue, in order; under `mutex`
+  double last_drop_log = 0.0;
 
-  void persist(const StoredAlert& s, bool is_new, std::string_view change, double t,
-               std::optional<double> value, const json& context) {
-    if (auto st = store.record(s, is_new, change, t, wall_now(), value, context); !st) {
-      ++counters.store_errors;
-      spdlog::error("alert {}: cannot store the change ({}): {}", s.alert.id, change, st.message());
+  // Hands one write to the store writer; false when its queue refused it.
+  bool try_submit(PendingWrite& w) {
+    store::WriteJob job;
+    job.task = w.task;
+    job.on_durable = [shared = tracker, id = w.alert_id, what = w.what, done = w.done,
+                      clears = w.clears](const store::WriteResult& r) {
+      {
+        std::lock_guard lock(shared->mutex);
+        if (!r.status) ++shared->store_errors;
+        if (clears) shared->clearing.erase(id);
+      }
+      if (!r.status) spdlog::error("alert {}: cannot store the change ({}): {}", id, what, r.status.message());
+      if (done) done(r.status);
+      std::lock_guard lock(shared->mutex);
+      --shared->in_flight;
+      shared->settled.notify_all();
+    };
+    {
+      std::lock_guard lock(tracker->mutex);
+      ++tracker->in_flight;
     }
+    if (writer->try_submit(job)) return true;
+    std::lock_guard lock(tracker->mutex);
+    --tracker->in_flight;
+    return false;
+  }
+
+  // Submits the kept writes, oldest first, until the writer refuses one.
+  void flush_pending() {
+    while (!pending.empty() && try_submit(pending.front())) pending.pop_front();
+  }
+
+  // Every store write of the engine comes here, under `mutex`, in the order
+  // of the changes: a write never overtakes one kept before it.
+  void submit(PendingWrite w) {
+    flush_pending();
+    if (pending.empty() && try_submit(w)) return;
+    if (writer->failed()) {
+      // Not a full queue but a writer that takes nothing more: keeping the
+      // change would only delay the same answer.
+      ++counters.store_errors;
+      spdlog::error("alert {}: the change ({}) is not stored: the store writer has failed", w.alert_id, w.what);
+      if (w.clears) {
+        std::lock_guard lock(tracker->mutex);
+        tracker->clearing.erase(w.alert_id);
+      }
+      if (w.done) w.done(Status::unavailable("the store writer has failed; the change is not stored"));
+      return;
+    }
+    if (pending.size() >= pending_max) {
+      ++counters.store_dropped;
+      const double now = wall_now();
+      if (now - last_drop_log >= 10.0) {
+        last_drop_log = now;
+        spdlog::error("alert {}: the change ({}) is not stored: the store writer took no write for a "
+                      "while and {} are waiting ({} dropped so far)",
+                      w.alert_id, w.what, pending.size(), counters.store_dropped);
+      }
+      if (w.clears) {
+        std::lock_guard lock(tracker->mutex);
+        tracker->clearing.erase(w.alert_id);
+      }
+      if (w.done) w.done(Status::unavailable("the store writer has no room; the change is not stored"));
+      return;
+    }
+    if (counters.store_deferred++ % 1000 == 0) {
+      spdlog::warn("alerts: the store writer's queue is full; {} change(s) kept to be stored later",
+                   pending.size() + 1);
+    }
+    pending.push_back(std::move(w));
+  }
+
+  void persist(const StoredAlert& s, std::string_view change, double t, std::optional<double> value,
+               const json& context, std::function<void(const Status&)> done = {}) {
+    PendingWrite w;
+    w.alert_id = s.alert.id;
+    w.what = std::string(change);
+    w.clears = s.alert.state == State::cleared;
+    if (w.clears) {
+      std::lock_guard lock(tracker->mutex);
+      tracker->clearing[s.alert.id] = s.alert;
+    }
+    w.task = [s, what = w.what, t, wall = wall_now(), value, context](store::Database& db) {
+      return AlertStore::write_change(db, s, what, t, wall, value, context);
+    };
+    w.done = std::move(done);
+    submit(std::move(w));
+  }
+
+  void persist_good_count(std::int64_t id, std::int64_t good_count) {
+    PendingWrite w;
+    w.alert_id = id;
+    w.what = "progress toward the clear";
+    w.task = [id, good_count](store::Database& db) { return AlertStore::write_good_count(db, id, good_count); };
+    submit(std::move(w));
   }
 
   void announce(const Alert& a, std::string_view change, bool to_hook) {
@@ -170,7 +289,7 @@ struct AlertEngine::Impl {
           a.value = obs.value;
           a.message = std::move(obs.message);
           a.context = std::move(obs.context);
-          persist(s, true, "raised", t, a.value, a.context);
+          persist(s, "raised", t, a.value, a.context);
           announce(a, "raised", true);
           if (health) last_health_update[key] = wall_now();
           live.emplace(key, std::move(s));
@@ -188,7 +307,7 @@ struct AlertEngine::Impl {
           if (last != last_health_update.end() && now - last->second < health_update_interval_s) return;
           last_health_update[key] = now;
         }
-        persist(s, false, "updated", t, s.alert.value, s.alert.context);
+        persist(s, "updated", t, s.alert.value, s.alert.context);
         announce(s.alert, "updated", false);
         return;
       }
@@ -197,15 +316,12 @@ struct AlertEngine::Impl {
         StoredAlert& s = it->second;
         s.good_count += 1;
         if (s.good_count < rs.clear_after) {
-          if (auto st = store.record_good_count(s.alert.id, s.good_count); !st) {
-            ++counters.store_errors;
-            spdlog::error("alert {}: {}", s.alert.id, st.message());
-          }
+          persist_good_count(s.alert.id, s.good_count);
           return;
         }
         s.alert.state = State::cleared;
         s.alert.cleared_at = t;
-        persist(s, false, "cleared", t, obs.value, obs.context);
+        persist(s, "cleared", t, obs.value, obs.context);
         announce(s.alert, "cleared", true);
         live.erase(it);
         last_health_update.erase(key);
@@ -214,10 +330,7 @@ struct AlertEngine::Impl {
       case Judgement::band: {
         if (it == live.end() || it->second.good_count == 0) return;
         it->second.good_count = 0;
-        if (auto st = store.record_good_count(it->second.alert.id, 0); !st) {
-          ++counters.store_errors;
-          spdlog::error("alert {}: {}", it->second.alert.id, st.message());
-        }
+        persist_good_count(it->second.alert.id, 0);
         return;
       }
       case Judgement::none:
@@ -227,12 +340,25 @@ struct AlertEngine::Impl {
 };
 
 AlertEngine::AlertEngine(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
-AlertEngine::~AlertEngine() = default;
 
-Status AlertEngine::create(const AlertConfig& config, const std::string& database_path,
-                                  EventPublisher* events, std::unique_ptr<AlertEngine>& out) {
+AlertEngine::~AlertEngine() {
+  Impl& m = *impl_;
+  std::lock_guard lock(m.mutex);
+  m.flush_pending();
+  if (m.pending.empty()) return;
+  spdlog::error("alerts: {} change(s) not stored: the store writer took no more writes", m.pending.size());
+  for (PendingWrite& w : m.pending) {
+    if (w.done) w.done(Status::unavailable("lphid is stopping; the change is not stored"));
+  }
+  m.pending.clear();
+}
+
+Status AlertEngine::create(const AlertConfig& config, store::StoreWriter& writer,
+                           const std::string& database_path, EventPublisher* events,
+                           std::unique_ptr<AlertEngine>& out) {
   auto impl = std::make_unique<Impl>();
   impl->config = config;
+  impl->writer = &writer;
   impl->events = events;
   if (auto s = AlertStore::open(database_path, impl->store); !s) return s;
   std::vector<StoredAlert> live;
@@ -256,6 +382,7 @@ Status AlertEngine::create(const AlertConfig& config, const std::string& databas
 void AlertEngine::on_fit(const FitFact& f) {
   Impl& m = *impl_;
   std::lock_guard lock(m.mutex);
+  m.flush_pending();
   const AlertConfig& c = m.config;
   const json base = {{"sweep_id", f.sweep_id},
                      {"sweep_index", f.sweep_index},
@@ -308,6 +435,7 @@ void AlertEngine::on_fit(const FitFact& f) {
 void AlertEngine::on_sweep(const SweepFact& f) {
   Impl& m = *impl_;
   std::lock_guard lock(m.mutex);
+  m.flush_pending();
   const AlertConfig& c = m.config;
   const json base = {{"sweep_id", f.sweep_id},
                      {"sweep_index", f.sweep_index},
@@ -370,6 +498,7 @@ void AlertEngine::on_sweep(const SweepFact& f) {
 void AlertEngine::on_verdict(const VerdictFact& f) {
   Impl& m = *impl_;
   std::lock_guard lock(m.mutex);
+  m.flush_pending();
   const AlertConfig& c = m.config;
   json base = {{"t", f.t},
                {"sweep_index", f.sweep_index},
@@ -421,6 +550,7 @@ void AlertEngine::on_verdict(const VerdictFact& f) {
 void AlertEngine::on_health(const HealthFact& f) {
   Impl& m = *impl_;
   std::lock_guard lock(m.mutex);
+  m.flush_pending();
   const AlertConfig& c = m.config;
   const double now = f.now_unix;
   for (const SourceHealth& source : f.sources) {
@@ -497,37 +627,75 @@ void AlertEngine::on_health(const HealthFact& f) {
   m.evaluate("writer-lag", "", settings(c.writer_lag), std::move(lag), now, true);
 }
 
-Status AlertEngine::acknowledge(std::int64_t id, double now_unix) {
+void AlertEngine::acknowledge(std::int64_t id, double now_unix, std::function<void(const Status&)> done) {
   Impl& m = *impl_;
-  std::lock_guard lock(m.mutex);
+  std::unique_lock lock(m.mutex);
+  m.flush_pending();
   for (auto& [key, s] : m.live) {
     if (s.alert.id != id) continue;
-    if (s.alert.state == State::acknowledged) return Status::success();
+    if (s.alert.state == State::acknowledged) {
+      lock.unlock();
+      done(Status::success());
+      return;
+    }
+    if (m.writer->failed()) {  // it could not be stored: the alert stays as it is
+      lock.unlock();
+      done(Status::unavailable("the store writer has failed; the acknowledgement cannot be stored"));
+      return;
+    }
     s.alert.state = State::acknowledged;
     s.alert.acked_at = now_unix;
-    m.persist(s, false, "acknowledged", now_unix, s.alert.value, json::object());
+    m.persist(s, "acknowledged", now_unix, s.alert.value, json::object(), std::move(done));
     m.announce(s.alert, "acknowledged", true);
-    return Status::success();
+    return;
   }
-  bool found = false;
-  StoredAlert stored;
-  if (auto s = m.store.find(id, found, stored); !s) return s;
-  if (!found) return Status::not_found("no alert has id " + std::to_string(id));
-  return Status::conflict(fmt::format("alert {} ({}) is already cleared", id, stored.alert.rule));
+  // Ids are given in order and an alert leaves `live` only when it is
+  // cleared: an id below next_id that is not live is a cleared alert.
+  const bool cleared = id >= 1 && id < m.next_id;
+  lock.unlock();
+  if (cleared) {
+    done(Status::conflict(fmt::format("alert {} is already cleared", id)));
+  } else {
+    done(Status::not_found("no alert has id " + std::to_string(id)));
+  }
+}
+
+Status AlertEngine::acknowledge(std::int64_t id, double now_unix) {
+  auto result = std::make_shared<std::promise<Status>>();
+  auto future = result->get_future();
+  acknowledge(id, now_unix, [result](const Status& s) { result->set_value(s); });
+  return future.get();
 }
 
 std::vector<Alert> AlertEngine::list(bool all, std::optional<std::string> subject) {
   Impl& m = *impl_;
   std::lock_guard lock(m.mutex);
+  m.flush_pending();
   std::vector<Alert> out;
   if (all) {
     if (auto s = m.store.list(true, subject, list_limit, out); s) {
-      // The live ones as they are now (a health alert's row lags its ticks).
-      for (Alert& a : out) {
-        if (a.state == State::cleared) continue;
-        auto it = m.live.find({a.rule, a.subject});
-        if (it != m.live.end() && it->second.alert.id == a.id) a = it->second.alert;
+      // The engine's state is the truth: the live ones as they are now (a
+      // health alert's row lags its ticks, a new one may not be stored yet),
+      // and the cleared ones whose clear is not durable yet.
+      std::map<std::int64_t, Alert> now;
+      {
+        std::lock_guard tracked(m.tracker->mutex);
+        for (const auto& [id, a] : m.tracker->clearing) {
+          if (!subject || a.subject == *subject) now[id] = a;
+        }
       }
+      for (const auto& [key, live] : m.live) {
+        if (!subject || live.alert.subject == *subject) now[live.alert.id] = live.alert;
+      }
+      for (Alert& a : out) {
+        if (auto it = now.find(a.id); it != now.end()) {
+          a = it->second;
+          now.erase(it);
+        }
+      }
+      for (auto& [id, a] : now) out.push_back(std::move(a));
+      std::sort(out.begin(), out.end(), [](const Alert& a, const Alert& b) { return a.id > b.id; });
+      if (out.size() > list_limit) out.resize(list_limit);
       return out;
     } else {
       spdlog::error("alerts: {}", s.message());
@@ -542,6 +710,31 @@ std::vector<Alert> AlertEngine::list(bool all, std::optional<std::string> subjec
 }
 
 json AlertEngine::handle_request(const json& request) {
+  auto result = std::make_shared<std::promise<json>>();
+  auto future = result->get_future();
+  handle_request(request, [result](json reply) { result->set_value(std::move(reply)); });
+  return future.get();
+}
+
+void AlertEngine::handle_request(const json& request, std::function<void(json)> reply) {
+  std::optional<std::int64_t> ack;
+  json answer = answer_or_ack(request, ack);
+  if (!ack) return reply(std::move(answer));
+  // The reply's content is decided from the engine's state at once; a reply
+  // that changes the alert is sent when the change is durable.
+  acknowledge(*ack, wall_now(), [id = *ack, send = std::move(reply)](const Status& s) {
+    if (s) return send(json{{"type", "ack"}, {"id", id}, {"state", "acknowledged"}});
+    using protocol::Reason;
+    const Reason reason = s.code() == StatusCode::not_found || s.code() == StatusCode::conflict
+                              ? Reason::value_out_of_range
+                              : Reason::storage_error;
+    send(protocol::error_message({std::nullopt, reason, s.message()}));
+  });
+}
+
+// The reply to every request but an acknowledgement, which is left to the
+// caller in `ack` (the id) after its keys are checked.
+json AlertEngine::answer_or_ack(const json& request, std::optional<std::int64_t>& ack) {
   using protocol::Reason;
   auto error = [](Reason reason, std::string detail) {
     return protocol::error_message({std::nullopt, reason, std::move(detail)});
@@ -590,8 +783,8 @@ json AlertEngine::handle_request(const json& request) {
       }
     }
     if (!id) return error(Reason::missing_field, "an ack request needs \"id\"");
-    if (auto s = acknowledge(*id, wall_now()); !s) return error(Reason::value_out_of_range, s.message());
-    return {{"type", "ack"}, {"id", *id}, {"state", "acknowledged"}};
+    ack = *id;
+    return json();
   }
 
   return error(Reason::unknown_type, "the alert engine answers \"alerts\" and \"ack\", not \"" + type + "\"");
@@ -603,6 +796,11 @@ AlertEngine::Counters AlertEngine::counters() const {
   {
     std::lock_guard lock(m.mutex);
     out = m.counters;
+    out.store_pending = m.pending.size();
+  }
+  {
+    std::lock_guard lock(m.tracker->mutex);
+    out.store_errors += m.tracker->store_errors;
   }
   if (m.hook) {
     const HookRunner::Counters h = m.hook->counters();
@@ -618,6 +816,28 @@ AlertEngine::Counters AlertEngine::counters() const {
 
 bool AlertEngine::wait_hook_idle(double timeout_s) {
   return !impl_->hook || impl_->hook->wait_idle(timeout_s);
+}
+
+bool AlertEngine::wait_stored(double timeout_s) {
+  Impl& m = *impl_;
+  const auto deadline =
+      std::chrono::steady_clock::now() +
+      std::chrono::duration_cast<std::chrono::steady_clock::duration>(std::chrono::duration<double>(timeout_s));
+  while (true) {
+    bool kept = false;
+    {
+      std::lock_guard lock(m.mutex);
+      m.flush_pending();
+      kept = !m.pending.empty();
+    }
+    std::unique_lock lock(m.tracker->mutex);
+    // Kept writes are retried every 10 ms; submitted ones are waited for.
+    const auto until = std::min(deadline, std::chrono::steady_clock::now() + std::chrono::milliseconds(10));
+    if (m.tracker->settled.wait_until(lock, until, [&] { return !kept && m.tracker->in_flight == 0; })) {
+      return true;
+    }
+    if (std::chrono::steady_clock::now() >= deadline) return false;
+  }
 }
 
 }  // namespace lphi::alerts

@@ -13,10 +13,24 @@
 // that replaying the same readings gives the same alerts; facts from the
 // health timer carry wall time. Both are seconds since the Unix epoch.
 //
+// One writer of the database: the engine's in-memory state is the truth for
+// its decisions. Every change it stores (alerts and alert_events rows, the
+// progress toward a clear, acknowledgements) is submitted to the store
+// writer as a task and never waited for, so a fact from the ingest thread's
+// health tick never blocks on the database. When the writer's queue refuses
+// a task, the engine keeps it, in order, in a bounded list (pending_max) and
+// submits it again on its next call (at least once a second, from the health
+// tick). At the bound the newest change is dropped, counted (store_dropped)
+// and logged: its alert_events row is lost, but the alert's row catches up
+// with its next stored change, which writes the whole row. A writer that
+// has failed (store/writer.hpp) takes nothing more: a change is then not
+// kept but counted as a store error, and an acknowledgement is refused.
+//
 // Thread safety: every public member may be called from any thread.
 #pragma once
 
 #include <cstdint>
+#include <functional>
 #include <memory>
 #include <optional>
 #include <string>
@@ -26,7 +40,11 @@
 
 #include "daemon/alerts/alert_config.hpp"
 #include "daemon/alerts/severity.hpp"
-#include "daemon/store/database.hpp"
+#include "schema/status.hpp"
+
+namespace lphi::store {
+class StoreWriter;
+}  // namespace lphi::store
 
 namespace lphi::alerts {
 
@@ -114,9 +132,10 @@ nlohmann::json alert_json(const Alert& alert);
 class EventPublisher;
 class HookRunner;
 
-// The engine. create() opens its own connection to the database (applying
-// the schema migrations if the file is new) and loads the alerts not yet
-// cleared, so a restart keeps their state and continues their ids.
+// The engine. create() opens a read-only connection to the database (the
+// store writer has applied the migrations) and loads the alerts not yet
+// cleared, so a restart keeps their state and continues their ids; its
+// writes go through `writer`, which must outlive the engine.
 //
 // Every rule keeps, per subject, a count of consecutive good observations;
 // a live alert is cleared when that count reaches the rule's clear_after.
@@ -131,9 +150,15 @@ class HookRunner;
 // memory and goes on.
 class AlertEngine {
  public:
+  // Store writes kept while the writer's queue has no room (see above).
+  static constexpr std::size_t pending_max = 4096;
+
   struct Counters {
     std::uint64_t changes = 0;         // raised + updated + acknowledged + cleared
-    std::uint64_t store_errors = 0;
+    std::uint64_t store_errors = 0;    // writes the database refused
+    std::uint64_t store_deferred = 0;  // writes the writer's queue refused at first (kept, retried)
+    std::uint64_t store_dropped = 0;   // writes dropped at pending_max
+    std::size_t store_pending = 0;     // writes kept now
     std::uint64_t hook_runs = 0;       // the hook was started
     std::uint64_t hook_failures = 0;   // could not start, or exited non-zero / by a signal
     std::uint64_t hook_timeouts = 0;   // killed after hook_timeout_s
@@ -142,12 +167,16 @@ class AlertEngine {
     std::string hook_failed;              // non-empty: the hook's thread failed (hook_runner.hpp)
   };
 
-  static Status create(const AlertConfig& config, const std::string& database_path,
-                              EventPublisher* events, std::unique_ptr<AlertEngine>& out);
+  static Status create(const AlertConfig& config, store::StoreWriter& writer,
+                       const std::string& database_path, EventPublisher* events,
+                       std::unique_ptr<AlertEngine>& out);
 
   AlertEngine(const AlertEngine&) = delete;
   AlertEngine& operator=(const AlertEngine&) = delete;
-  ~AlertEngine();  // stops the hook thread (a running hook is killed)
+  // Stops the hook thread (a running hook is killed). Changes still kept for
+  // the writer are submitted once more; what it cannot take is logged as not
+  // stored (and an acknowledgement waiting for it is answered "unavailable").
+  ~AlertEngine();
 
   // From the analysis (event time).
   void on_sweep(const SweepFact& fact);
@@ -157,14 +186,26 @@ class AlertEngine {
   void on_health(const HealthFact& fact);
 
   // {"type":"alerts","all":bool?,"sample":NAME?} and {"type":"ack","id":N};
-  // anything else, or a bad key, gets protocol::error_message.
+  // anything else, or a bad key, gets protocol::error_message. `reply` is
+  // called once: at once, except for an acknowledgement that changes the
+  // alert, whose reply comes from the store writer's thread once it is
+  // durable. Never blocks (the ingest thread's control socket calls it).
+  void handle_request(const nlohmann::json& request, std::function<void(nlohmann::json)> reply);
+  // The same, waiting for the reply: for tests and tools, never for the
+  // ingest thread.
   nlohmann::json handle_request(const nlohmann::json& request);
 
   // Newest first. Without `all`, only alerts not cleared; `subject` filters.
   std::vector<Alert> list(bool all, std::optional<std::string> subject = std::nullopt);
 
-  // Acknowledges a live alert at wall time now_unix. Fails naming why: no
-  // alert with that id, or it is already cleared.
+  // Acknowledges a live alert at wall time now_unix. Decided at once from the
+  // engine's state: Status::not_found (no alert has that id) or
+  // Status::conflict (it is already cleared) go to `done` at once, as does
+  // success for an alert already acknowledged; otherwise `done` runs on the
+  // store writer's thread when the acknowledgement is durable (or with the
+  // writer's error). Never blocks.
+  void acknowledge(std::int64_t id, double now_unix, std::function<void(const Status&)> done);
+  // The same, waiting for `done`: for tests and tools.
   Status acknowledge(std::int64_t id, double now_unix);
 
   Counters counters() const;
@@ -172,9 +213,14 @@ class AlertEngine {
   // Waits until the hook queue is empty and no hook runs, or timeout_s
   // passed; true when idle. For an orderly stop and for tests.
   bool wait_hook_idle(double timeout_s);
+  // Waits until every change submitted so far is durable (or refused by the
+  // database), retrying kept ones, or timeout_s passed; true when settled.
+  // For tests and tools: the engine itself never waits for the writer.
+  bool wait_stored(double timeout_s);
 
  private:
   struct Impl;
+  nlohmann::json answer_or_ack(const nlohmann::json& request, std::optional<std::int64_t>& ack);
   explicit AlertEngine(std::unique_ptr<Impl> impl);
   std::unique_ptr<Impl> impl_;
 };

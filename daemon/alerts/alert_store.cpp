@@ -1,6 +1,6 @@
 #include "daemon/alerts/alert_store.hpp"
 
-#include "daemon/store/migrations.hpp"
+#include <sqlite3.h>
 
 namespace lphi::alerts {
 
@@ -41,8 +41,7 @@ StoredAlert read_row(const Statement& s) {
 
 Status AlertStore::open(const std::string& database_path, AlertStore& out) {
   store::Database db;
-  if (auto s = store::Database::open(database_path, store::OpenMode::writer, db); !s) return s;
-  if (auto s = store::apply_migrations(db, store::embedded_migrations()); !s) return s;
+  if (auto s = store::Database::open(database_path, store::OpenMode::read_only, db); !s) return s;
   out.db_ = std::move(db);
   return Status::success();
 }
@@ -66,24 +65,23 @@ Status AlertStore::load_live(std::vector<StoredAlert>& out, std::int64_t& max_id
   return Status::success();
 }
 
-Status AlertStore::record(const StoredAlert& stored, bool is_new, std::string_view change, double t,
-                          double wall_time, std::optional<double> event_value,
-                          const nlohmann::json& event_context) {
+Status AlertStore::write_change(store::Database& db, const StoredAlert& stored, std::string_view change,
+                                double t, double wall_time, std::optional<double> event_value,
+                                const nlohmann::json& event_context) {
   const Alert& a = stored.alert;
-  if (auto s = db_.exec("BEGIN IMMEDIATE"); !s) return s;
-  auto fail = [&](Status s) {
-    (void)db_.exec("ROLLBACK");
-    return s;
-  };
   Statement row;
-  const char* sql =
-      is_new ? "INSERT INTO alerts (rule, subject, severity, state, raised_at, acked_at, cleared_at,"
-               " value, count, message, context, good_count, id)"
-               " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)"
-             : "UPDATE alerts SET rule = ?1, subject = ?2, severity = ?3, state = ?4, raised_at = ?5,"
-               " acked_at = ?6, cleared_at = ?7, value = ?8, count = ?9, message = ?10, context = ?11,"
-               " good_count = ?12 WHERE id = ?13";
-  if (auto s = Statement::prepare(db_, sql, row); !s) return fail(s);
+  if (auto s = Statement::prepare(
+          db,
+          "INSERT INTO alerts (rule, subject, severity, state, raised_at, acked_at, cleared_at,"
+          " value, count, message, context, good_count, id)"
+          " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)"
+          " ON CONFLICT (id) DO UPDATE SET rule = ?1, subject = ?2, severity = ?3, state = ?4,"
+          " raised_at = ?5, acked_at = ?6, cleared_at = ?7, value = ?8, count = ?9, message = ?10,"
+          " context = ?11, good_count = ?12",
+          row);
+      !s) {
+    return s;
+  }
   const std::string context = a.context.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
   row.bind(1, a.rule);
   row.bind(2, a.subject);
@@ -98,15 +96,15 @@ Status AlertStore::record(const StoredAlert& stored, bool is_new, std::string_vi
   row.bind(11, context);
   row.bind(12, stored.good_count);
   row.bind(13, a.id);
-  if (row.step() != SQLITE_DONE) return fail(db_.error("storing alert " + std::to_string(a.id)));
+  if (row.step() != SQLITE_DONE) return db.error("storing alert " + std::to_string(a.id));
 
   Statement event;
-  if (auto s = Statement::prepare(db_,
+  if (auto s = Statement::prepare(db,
                                   "INSERT INTO alert_events (alert_id, change, t, wall_time, value, context)"
                                   " VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
                                   event);
       !s) {
-    return fail(s);
+    return s;
   }
   event.bind(1, a.id);
   event.bind(2, change);
@@ -114,21 +112,18 @@ Status AlertStore::record(const StoredAlert& stored, bool is_new, std::string_vi
   event.bind(4, wall_time);
   event.bind_optional(5, event_value);
   event.bind(6, event_context.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
-  if (event.step() != SQLITE_DONE) {
-    return fail(db_.error("storing a change of alert " + std::to_string(a.id)));
-  }
-  if (auto s = db_.exec("COMMIT"); !s) return fail(s);
+  if (event.step() != SQLITE_DONE) return db.error("storing a change of alert " + std::to_string(a.id));
   return Status::success();
 }
 
-Status AlertStore::record_good_count(std::int64_t id, std::int64_t good_count) {
+Status AlertStore::write_good_count(store::Database& db, std::int64_t id, std::int64_t good_count) {
   Statement s;
-  if (auto st = Statement::prepare(db_, "UPDATE alerts SET good_count = ?1 WHERE id = ?2", s); !st) {
+  if (auto st = Statement::prepare(db, "UPDATE alerts SET good_count = ?1 WHERE id = ?2", s); !st) {
     return st;
   }
   s.bind(1, good_count);
   s.bind(2, id);
-  if (s.step() != SQLITE_DONE) return db_.error("storing the progress of alert " + std::to_string(id));
+  if (s.step() != SQLITE_DONE) return db.error("storing the progress of alert " + std::to_string(id));
   return Status::success();
 }
 

@@ -1,6 +1,13 @@
-// AlertStore: the alerts and alert_events tables (schema/0004_alerts.sql)
-// through the alert engine's own connection. Used by one thread at a time
-// (the engine serialises its calls).
+// AlertStore: the alerts and alert_events tables (schema/0004_alerts.sql).
+//
+// One writer of the database: the AlertStore reads through its own read-only
+// connection and never writes on it. Its write_* functions are what the
+// alert engine hands to the store writer as WriteJob tasks: they run on the
+// writer thread, inside its transaction (in a SAVEPOINT), in queue order.
+//
+// Thread safety: the reads (load_live, list, find) are used by one thread at
+// a time (the engine serialises its calls); the write_* functions hold no
+// state and run on whichever thread owns `db` (the store writer's).
 #pragma once
 
 #include <cstdint>
@@ -22,25 +29,29 @@ struct StoredAlert {
 
 class AlertStore {
  public:
-  // Opens (creating if needed) the database and applies pending migrations.
+  // Opens a read-only connection to the database. The schema must be there:
+  // the store writer applies the migrations when it opens the file.
   static Status open(const std::string& database_path, AlertStore& out);
 
   // The alerts not cleared, and the highest id ever given (0 for none).
   Status load_live(std::vector<StoredAlert>& out, std::int64_t& max_id);
 
-  // Writes the alert row (inserted when `is_new`) and one alert_events row
-  // for `change` with the observation behind it, in one transaction.
-  Status record(const StoredAlert& alert, bool is_new, std::string_view change, double t,
-                       double wall_time, std::optional<double> event_value,
-                       const nlohmann::json& event_context);
-  // Writes only the progress toward the clear (no event).
-  Status record_good_count(std::int64_t id, std::int64_t good_count);
-
   // Newest first, at most `limit`.
   Status list(bool all, const std::optional<std::string>& subject, std::size_t limit,
-                     std::vector<Alert>& out);
+              std::vector<Alert>& out);
   // One alert by id (found = false when there is none).
   Status find(std::int64_t id, bool& found, StoredAlert& out);
+
+  // --- writer tasks: run inside the store writer's transaction -------------
+
+  // Writes the whole alert row (inserted, or updated when its id is stored:
+  // a row whose insert was never stored is written whole by its next change)
+  // and one alert_events row for `change` with the observation behind it.
+  static Status write_change(store::Database& db, const StoredAlert& alert, std::string_view change,
+                             double t, double wall_time, std::optional<double> event_value,
+                             const nlohmann::json& event_context);
+  // Writes only the progress toward the clear (no event).
+  static Status write_good_count(store::Database& db, std::int64_t id, std::int64_t good_count);
 
  private:
   store::Database db_;

@@ -33,6 +33,10 @@ void print_human(const json& s) {
             << fixed(w.value("lag_s", 0.0), 3) << " s, " << w.value("commits", std::uint64_t{0}) << " commits, p99.9 "
             << fixed(w.value("commit_p999_s", 0.0) * 1e3, 2) << " ms"
             << (w.value("backpressure", false) ? ", back-pressure ON" : "") << "\n";
+  if (w.value("failed", false)) {
+    std::cout << "writer FAILED, nothing is written any more (restart lphid): " << w.value("last_error", "")
+              << "\n";
+  }
   const auto& c = s.at("counters");
   std::cout << "readings: " << c.value("accepted", std::uint64_t{0}) << " accepted, " << c.value("duplicates", std::uint64_t{0})
             << " duplicates, " << c.value("gaps", std::uint64_t{0}) << " gaps\n";

@@ -50,6 +50,8 @@ json writer_json(const store::WriterStats& w, bool backpressure) {
           {"commit_p999_s", w.commit_p999_s},
           {"commit_max_s", w.commit_max_s},
           {"checkpoints", w.checkpoints},
+          {"failed", w.failed},
+          {"last_error", w.last_error},
           {"backpressure", backpressure}};
 }
 

@@ -4,6 +4,9 @@ namespace lphi::live {
 
 Status LiveAnalysis::create(const config::Config& config, const LiveOptions& options, alerts::AlertEngine* engine,
                             alerts::EventPublisher* events, std::unique_ptr<LiveAnalysis>& out) {
+  if (options.writer == nullptr) {
+    return Status::invalid_input("the live analysis needs the store writer (LiveOptions::writer)");
+  }
   std::unique_ptr<LiveAnalysis> a(new LiveAnalysis());
   for (const auto& sample : config.samples) {
     std::unique_ptr<SampleWorker> w;

@@ -64,9 +64,6 @@ Status SampleWorker::create(const config::SampleConfig& sample, const LiveOption
       !s) {
     return s;
   }
-  if (options.writer == nullptr) {
-    if (auto s = store::Database::open(path, store::OpenMode::writer, w->write_db_); !s) return s;
-  }
   w->sweep_ids_ = std::move(stored.sweep_ids);
   w->publisher_ = std::make_unique<RecordPublisher>(sample.name, stored.last_sweep_index, engine, events);
   w->pipeline_ = std::make_unique<SamplePipeline>(settings, std::move(stored.fits));
@@ -188,7 +185,6 @@ void SampleWorker::stop_with(const std::string& error) {
 // refuses only when it is stopping.
 Status SampleWorker::store_records(const PipelineOutput& out) {
   if (out.sweeps.empty() && out.fits.empty() && out.verdicts.empty()) return Status::success();
-  if (options_.writer == nullptr) return write_on_own_connection(out);
   std::promise<Status> done;
   auto durable = done.get_future();
   store::WriteJob job;
@@ -196,20 +192,6 @@ Status SampleWorker::store_records(const PipelineOutput& out) {
   job.on_durable = [&done](const store::WriteResult& r) { done.set_value(r.status); };
   if (!options_.writer->try_submit(job)) return Status::unavailable(std::string(writer_stopping));
   return durable.get();
-}
-
-// No store writer (nothing else writes the database): our own transaction.
-Status SampleWorker::write_on_own_connection(const PipelineOutput& out) {
-  if (auto s = write_db_.exec("BEGIN IMMEDIATE"); !s) return s;
-  if (auto s = store::write_analysis_records(write_db_, sample_id_, out, sweep_ids_); !s) {
-    (void)write_db_.exec("ROLLBACK");
-    return s;
-  }
-  if (auto s = write_db_.exec("COMMIT"); !s) {
-    (void)write_db_.exec("ROLLBACK");
-    return s;
-  }
-  return Status::success();
 }
 
 void SampleWorker::set_progress(bool busy) {

@@ -51,9 +51,8 @@ namespace lphi::live {
 
 struct LiveOptions {
   std::string data_dir;                  // for the database
-  // The store's writer: the analysis records are written by its thread, in
-  // order with the readings (one writer of the database). Null: each sample
-  // writes on its own connection (only where nothing else writes).
+  // The store's writer (required): the analysis records are written by its
+  // thread, in order with the readings (one writer of the database).
   store::StoreWriter* writer = nullptr;
   std::size_t chunk_readings = 4000;     // per query, per stream
   std::chrono::milliseconds poll_interval{100};  // when every stream is caught up
@@ -97,7 +96,6 @@ class SampleWorker {
   void loop();
   bool analyse_one(PipelineOutput& out);
   Status store_records(const PipelineOutput& out);
-  Status write_on_own_connection(const PipelineOutput& out);
   void inject_fault(const PipelineOutput& out) const;
   void stop_with(const std::string& error);
   void set_progress(bool busy);
@@ -111,7 +109,6 @@ class SampleWorker {
   std::string source_name_[3];
   std::optional<std::int64_t> fault_at_sweep_;
 
-  store::Database write_db_;  // only without a store writer
   StreamMerger merger_;
   std::unique_ptr<SamplePipeline> pipeline_;
   std::unique_ptr<RecordPublisher> publisher_;

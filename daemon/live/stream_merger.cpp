@@ -1,5 +1,7 @@
 #include "daemon/live/stream_merger.hpp"
 
+#include <sqlite3.h>
+
 #include <limits>
 #include <spdlog/spdlog.h>
 

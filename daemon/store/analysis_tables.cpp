@@ -1,5 +1,7 @@
 #include "daemon/store/analysis_tables.hpp"
 
+#include <sqlite3.h>
+
 #include <cmath>
 #include <limits>
 

@@ -1,6 +1,10 @@
 #include "daemon/store/database.hpp"
 
+#include <sqlite3.h>
+
 #include <utility>
+
+#include "daemon/store/test_access.hpp"
 
 namespace lphi::store {
 
@@ -26,8 +30,24 @@ Database& Database::operator=(Database&& other) noexcept {
   return *this;
 }
 
-Status Database::open(const std::string& path, OpenMode mode, Database& out,
-                      Synchronous synchronous) {
+Status Database::open(const std::string& path, OpenMode mode, Database& out) {
+  if (mode != OpenMode::read_only) {
+    return Status::invalid_input("cannot open " + path +
+                                 " for writing: only the store writer writes the database");
+  }
+  return open_connection(path, mode, out, Synchronous::normal);
+}
+
+Status Database::open_writer(const std::string& path, Database& out, Synchronous synchronous) {
+  return open_connection(path, OpenMode::writer, out, synchronous);
+}
+
+Status open_writer_connection_for_tests(const std::string& path, Database& out) {
+  return Database::open_writer(path, out, Synchronous::normal);
+}
+
+Status Database::open_connection(const std::string& path, OpenMode mode, Database& out,
+                                 Synchronous synchronous) {
   Database db;
   db.path_ = path;
   const int flags = (mode == OpenMode::writer ? SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE

@@ -1,11 +1,19 @@
 // The one place that opens lphi's SQLite database, and thin owners of the
 // SQLite handles. A Database or Statement is used by one thread at a time.
 //
+// One writer: anyone may open a read-only connection, but only the store
+// layer can open the write connection (Database::open_writer is private to
+// StoreWriter and to the store's test entry point, test_access.hpp). Every
+// other write goes through the StoreWriter's thread as a WriteJob::task.
+//
 // Errors are values: every operation returns a Status whose message names
 // what failed (the file, the statement, SQLite's own explanation).
+//
+// This header does not include <sqlite3.h> (the handles are forward
+// declared), so code that only names a Database -- the sockets, through
+// writer.hpp -- does not see SQLite; code that steps statements includes
+// <sqlite3.h> itself for the result codes.
 #pragma once
-
-#include <sqlite3.h>
 
 #include <cstdint>
 #include <string>
@@ -13,10 +21,13 @@
 
 #include "schema/status.hpp"
 
+struct sqlite3;
+struct sqlite3_stmt;
+
 namespace lphi::store {
 
 enum class OpenMode {
-  writer,     // read-write, created if missing, WAL; only the store writer uses this
+  writer,     // read-write, created if missing, WAL: Database::open_writer, store layer only
   read_only,  // every reader opens its own
 };
 
@@ -34,10 +45,10 @@ class Database {
   Database(Database&& other) noexcept;
   Database& operator=(Database&& other) noexcept;
 
-  // Opens path and sets the connection up (WAL and synchronous for a writer,
-  // a busy timeout for both). Does not apply migrations (see migrations.hpp).
-  static Status open(const std::string& path, OpenMode mode, Database& out,
-                     Synchronous synchronous = Synchronous::normal);
+  // Opens path read-only with a busy timeout. Any mode but
+  // OpenMode::read_only is refused with Status::invalid_input: the write
+  // connection is the store writer's (open_writer).
+  static Status open(const std::string& path, OpenMode mode, Database& out);
 
   sqlite3* handle() const { return db_; }
   bool is_open() const { return db_ != nullptr; }
@@ -51,6 +62,14 @@ class Database {
  private:
   sqlite3* db_ = nullptr;
   std::string path_;
+
+  // Opens (creating if missing) the read-write connection: WAL, synchronous,
+  // no automatic checkpoints. Does not apply migrations (see migrations.hpp).
+  static Status open_writer(const std::string& path, Database& out, Synchronous synchronous);
+  static Status open_connection(const std::string& path, OpenMode mode, Database& out,
+                                Synchronous synchronous);
+  friend class StoreWriter;
+  friend Status open_writer_connection_for_tests(const std::string& path, Database& out);
 };
 
 class Statement {

@@ -1,5 +1,7 @@
 #include "daemon/store/migrations.hpp"
 
+#include <sqlite3.h>
+
 #include <string>
 
 namespace lphi::store {

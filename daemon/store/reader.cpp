@@ -1,5 +1,7 @@
 #include "daemon/store/reader.hpp"
 
+#include <sqlite3.h>
+
 namespace lphi::store {
 
 using protocol::SourceKind;

@@ -1,7 +1,11 @@
 #include "daemon/store/writer.hpp"
 
+#include <spdlog/spdlog.h>
+#include <sqlite3.h>
+
 #include <algorithm>
 #include <chrono>
+#include <exception>
 
 #include "daemon/store/migrations.hpp"
 
@@ -37,7 +41,7 @@ Status StoreWriter::open(const std::string& path, const WriterOptions& options,
                          std::unique_ptr<StoreWriter>& out) {
   std::unique_ptr<StoreWriter> w(new StoreWriter(options));
   w->path_ = path;
-  if (auto s = Database::open(path, OpenMode::writer, w->db_, options.synchronous); !s) return s;
+  if (auto s = Database::open_writer(path, w->db_, options.synchronous); !s) return s;
   if (auto s = apply_migrations(w->db_, embedded_migrations()); !s) return s;
   if (auto s = w->prepare_statements(); !s) return s;
   out = std::move(w);
@@ -174,7 +178,7 @@ bool StoreWriter::try_submit(WriteJob& job) {
   const std::size_t n = protocol::reading_count(job.readings);
   {
     std::lock_guard lock(mutex_);
-    if (stopping_ || !started_) return false;
+    if (stopping_ || !started_ || failed_) return false;
     // One job larger than the whole queue still goes in when the queue is
     // empty, so that nothing can be refused forever.
     if (!queue_.empty() && queued_readings_ + n > options_.queue_max_readings) return false;
@@ -305,8 +309,63 @@ void StoreWriter::record_commit(Clock::duration d) {
   }
 }
 
+// The writer thread's entry point: nothing escapes it (see the contract in
+// writer.hpp). A job that throws leaves its transaction open; it is rolled
+// back here, and every job taken or still queued is told it was not written.
 void StoreWriter::run() {
-  std::vector<Queued> batch;
+  std::string what;
+  try {
+    run_batches();
+    return;
+  } catch (const std::exception& e) {
+    what = e.what();
+  } catch (...) {
+    what = "an exception that is not a std::exception";
+  }
+  fail("the store writer thread", what);
+  (void)db_.exec("ROLLBACK");
+  // The sources' highest seq may count readings of the rolled-back
+  // transaction; nothing is written any more, so it is not used again.
+  const Status in_batch = Status::internal("the store writer failed: " + what);
+  const Status queued = Status::unavailable("the store writer failed and writes nothing more: " + what);
+  // in_flight_ holds the jobs of the transaction; those already told their
+  // outcome have no on_durable left.
+  std::vector<Queued> taken = std::move(in_flight_);
+  in_flight_.clear();
+  const std::size_t in_transaction = taken.size();
+  {
+    std::lock_guard lock(mutex_);
+    for (auto& q : queue_) taken.push_back(std::move(q));
+    queue_.clear();
+    queued_readings_ = 0;
+  }
+  for (std::size_t i = 0; i < taken.size(); ++i) {
+    auto on_durable = std::move(taken[i].job.on_durable);
+    if (!on_durable) continue;
+    WriteResult r{i < in_transaction ? in_batch : queued, 0, 0, 0, std::nullopt, {}};
+    r.latency = Clock::now() - taken[i].submitted;
+    try {
+      on_durable(r);
+    } catch (const std::exception& e) {
+      spdlog::error("store writer: a job's completion threw while failing it: {}", e.what());
+    } catch (...) {
+      spdlog::error("store writer: a job's completion threw while failing it");
+    }
+  }
+}
+
+void StoreWriter::fail(const std::string& where, const std::string& what) {
+  spdlog::critical("{} stopped on an exception: {}; the store writes nothing more "
+                   "(queued jobs are told so, senders are not acknowledged)",
+                   where, what);
+  std::lock_guard lock(mutex_);
+  failed_ = true;
+  ++exceptions_;
+  last_error_ = where + ": " + what;
+}
+
+void StoreWriter::run_batches() {
+  std::vector<Queued>& batch = in_flight_;
   std::vector<WriteResult> results;
   while (true) {
     batch.clear();
@@ -329,11 +388,12 @@ void StoreWriter::run() {
         if (queue_.empty()) break;
         next = std::move(queue_.front());
         queue_.pop_front();
+        if (batch.empty()) oldest_in_transaction_ = next.submitted;
       }
-      WriteResult result;
-      status = write(next.job, result);
       readings += protocol::reading_count(next.job.readings);
-      batch.push_back(std::move(next));
+      batch.push_back(std::move(next));  // first: a job that throws is in the batch run() fails
+      WriteResult result;
+      status = write(batch.back().job, result);
       results.push_back(std::move(result));
     }
     if (status) status = db_.exec("COMMIT");
@@ -345,6 +405,7 @@ void StoreWriter::run() {
     {
       std::lock_guard lock(mutex_);
       queued_readings_ -= readings;
+      oldest_in_transaction_.reset();
       if (status) {
         ++commits_;
         readings_committed_ += readings;
@@ -357,7 +418,10 @@ void StoreWriter::run() {
       WriteResult& result = results[i];
       if (!status) result = WriteResult{status, 0, 0, 0, std::nullopt, {}};
       result.latency = done - batch[i].submitted;
-      if (batch[i].job.on_durable) batch[i].job.on_durable(result);
+      // Taken out first: one that throws is not told again by run().
+      auto on_durable = std::move(batch[i].job.on_durable);
+      batch[i].job.on_durable = nullptr;
+      if (on_durable) on_durable(result);
     }
     if (!status) {
       // A failing disk should not spin the CPU; the senders will resend.
@@ -366,9 +430,24 @@ void StoreWriter::run() {
   }
 }
 
+// The checkpointer's entry point: an exception is caught, logged and counted,
+// and marks the writer failed (the log would grow without checkpoints).
 void StoreWriter::run_checkpoints() {
+  try {
+    checkpoint_loop();
+  } catch (const std::exception& e) {
+    fail("the store checkpointer", e.what());
+  } catch (...) {
+    fail("the store checkpointer", "an exception that is not a std::exception");
+  }
+}
+
+void StoreWriter::checkpoint_loop() {
   Database db;
-  if (!Database::open(path_, OpenMode::writer, db, options_.synchronous)) return;
+  if (auto s = Database::open_writer(path_, db, options_.synchronous); !s) {
+    spdlog::error("store checkpointer: {}; the write-ahead log is not checkpointed", s.message());
+    return;
+  }
   std::unique_lock lock(mutex_);
   while (!stopping_) {
     checkpoint_wake_.wait_for(lock, options_.checkpoint_interval, [&] { return stopping_; });
@@ -382,6 +461,11 @@ void StoreWriter::run_checkpoints() {
   }
 }
 
+bool StoreWriter::failed() const {
+  std::lock_guard lock(mutex_);
+  return failed_;
+}
+
 WriterStats StoreWriter::stats() const {
   std::lock_guard lock(mutex_);
   WriterStats s;
@@ -391,10 +475,14 @@ WriterStats StoreWriter::stats() const {
   s.queued_readings = queued_readings_;
   s.queued_jobs = queue_.size();
   s.checkpoints = checkpoints_;
-  if (!queue_.empty()) {
-    s.oldest_queued_age_s =
-        std::chrono::duration<double>(Clock::now() - queue_.front().submitted).count();
-  }
+  s.failed = failed_;
+  s.last_error = last_error_;
+  s.exceptions = exceptions_;
+  // A job in the open transaction is still behind: a writer held in a
+  // transaction (a slow disk, a lock held elsewhere) shows its lag.
+  std::optional<Clock::time_point> oldest = oldest_in_transaction_;
+  if (!queue_.empty() && (!oldest || queue_.front().submitted < *oldest)) oldest = queue_.front().submitted;
+  if (oldest) s.oldest_queued_age_s = std::chrono::duration<double>(Clock::now() - *oldest).count();
   if (!commit_seconds_.empty()) {
     std::vector<double> sorted = commit_seconds_;
     std::sort(sorted.begin(), sorted.end());

@@ -15,6 +15,19 @@
 // Checkpoints of the write-ahead log run on a separate thread and connection
 // (PASSIVE, so they never block the writer) to keep them out of commits.
 //
+// One writer: the StoreWriter holds lphid's only write connection. Other parts
+// of lphid that store something (the live analysis, the alert engine) submit
+// a WriteJob::task, which runs on the writer thread in queue order.
+//
+// Failure: an exception that escapes a job (a task that throws, an
+// on_durable that throws) or the checkpointer is caught, logged and counted;
+// the transaction in progress is rolled back and the writer is marked failed
+// (WriterStats::failed, last_error). Every job of that transaction and every
+// job still queued gets its on_durable with a failed status (internal for the
+// transaction, unavailable for the rest), so no sender is acknowledged for
+// data that was not written, and try_submit refuses from then on. lphid keeps
+// answering (status shows the failure); it does not terminate.
+//
 // Thread safety: try_submit, stats and stop may be called from any thread; the
 // set-up calls (register_*, source_state) only before start().
 #pragma once
@@ -67,14 +80,16 @@ struct WriteJob {
   protocol::Readings readings;  // may be empty (a job that only records an identity)
   std::function<void(const WriteResult&)> on_durable;  // runs on the writer thread
   std::optional<InstrumentIdentity> identity{};  // recorded in instrument_identities
-  // A job of another writer of the database (the live analysis): when set,
+  // A job of another part of lphid that stores something (the live
+  // analysis' records, the alert engine's changes): when set,
   // source_id, readings and identity are ignored and the writer thread runs
   // task(db) inside its own transaction, in a SAVEPOINT, in queue order with
   // the readings. A task that fails is rolled back to its savepoint alone
   // (the readings of the same transaction stay) and on_durable gets its
   // status; one that succeeds is durable when on_durable runs. So the
   // database keeps one writer, and a busy store can never starve the
-  // analysis of the write lock.
+  // analysis of the write lock. A task must return its errors: one that
+  // throws fails the writer (see above).
   std::function<Status(Database&)> task{};
 };
 
@@ -98,11 +113,18 @@ struct WriterStats {
   std::uint64_t failed_commits = 0;
   std::size_t queued_readings = 0;
   std::size_t queued_jobs = 0;
-  double oldest_queued_age_s = 0.0;  // how far the writer lags behind
+  // How far the writer lags behind: the age of the oldest job not yet
+  // committed (queued, or in the transaction in progress).
+  double oldest_queued_age_s = 0.0;
   // Over the most recent commits (up to 65536): wall time of the transaction,
   // from BEGIN to the end of COMMIT.
   double commit_p50_s = 0.0, commit_p99_s = 0.0, commit_p999_s = 0.0, commit_max_s = 0.0;
   std::uint64_t checkpoints = 0;
+  // The writer stopped on an exception (see the contract above); last_error
+  // is what it said. exceptions counts those caught on either thread.
+  bool failed = false;
+  std::string last_error;
+  std::uint64_t exceptions = 0;
 };
 
 class StoreWriter {
@@ -120,12 +142,16 @@ class StoreWriter {
   Status register_sample(const SampleRow& sample);
 
   void start();
-  // False when the queue is full (or the writer stopped); the job is untouched then.
+  // False when the queue is full (or the writer stopped or failed); the job is
+  // untouched then.
   bool try_submit(WriteJob& job);
   // Writes what is queued, commits, and joins the threads. Idempotent.
   void stop();
 
   WriterStats stats() const;
+  // True once the writer stopped on an exception (see above): it takes no
+  // more jobs, ever. Cheap, from any thread.
+  bool failed() const;
 
  private:
   struct Queued {
@@ -138,7 +164,10 @@ class StoreWriter {
   };
   explicit StoreWriter(const WriterOptions& options);
   void run();
+  void run_batches();
   void run_checkpoints();
+  void checkpoint_loop();
+  void fail(const std::string& where, const std::string& what);
   Status prepare_statements();
   Status write(const WriteJob& job, WriteResult& result);
   bool insert(std::int64_t source_id, const protocol::LockinReading& r);
@@ -155,9 +184,14 @@ class StoreWriter {
   mutable std::mutex mutex_;
   std::condition_variable wake_;
   std::deque<Queued> queue_;
+  std::vector<Queued> in_flight_;  // the jobs of the open transaction; writer thread only
+  std::optional<std::chrono::steady_clock::time_point> oldest_in_transaction_;  // under mutex_
   std::size_t queued_readings_ = 0;
   bool stopping_ = false;
   bool started_ = false;
+  bool failed_ = false;
+  std::string last_error_;
+  std::uint64_t exceptions_ = 0;
 
   std::condition_variable checkpoint_wake_;
   std::uint64_t checkpoints_ = 0;

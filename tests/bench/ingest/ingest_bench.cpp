@@ -15,6 +15,7 @@
 #include <chrono>
 #include <cmath>
 #include <cstdio>
+#include <cstdlib>
 #include <cstring>
 #include <filesystem>
 #include <fstream>
@@ -26,6 +27,7 @@
 #include "daemon/config/data_dir.hpp"
 #include "daemon/store/migrations.hpp"
 #include "daemon/store/reader.hpp"
+#include "daemon/store/test_access.hpp"
 #include "drivers/sender/sender.hpp"
 
 extern char** environ;
@@ -46,26 +48,33 @@ protocol::LockinReading reading(std::int64_t seq, double t0) {
   return r;
 }
 
+// A benchmark on a database that refused a step measures nothing: stop.
+void must(const Status& s) {
+  if (s) return;
+  std::fprintf(stderr, "ingest_bench: %s\n", s.message().c_str());
+  std::exit(1);
+}
+
 void ceiling(const std::string& dir, std::int64_t n, double t0) {
   for (int variant = 0; variant < 2; ++variant) {
     const std::string path = dir + (variant == 0 ? "/ceiling-schema.db" : "/ceiling-rowid.db");
     std::filesystem::remove(path);
     store::Database db;
-    store::Database::open(path, store::OpenMode::writer, db);
+    must(store::open_writer_connection_for_tests(path, db));
     if (variant == 0) {
-      store::apply_migrations(db, store::embedded_migrations());
-      db.exec("INSERT INTO sources (id, name, kind) VALUES (1, 'lockin-a', 'lockin')");
+      must(store::apply_migrations(db, store::embedded_migrations()));
+      must(db.exec("INSERT INTO sources (id, name, kind) VALUES (1, 'lockin-a', 'lockin')"));
     } else {
-      db.exec("CREATE TABLE r (source_id INTEGER, seq INTEGER, t REAL, x_v REAL, y_v REAL,"
-              " frequency_hz REAL, range_v REAL, time_constant_s REAL, overload INTEGER)");
+      must(db.exec("CREATE TABLE r (source_id INTEGER, seq INTEGER, t REAL, x_v REAL, y_v REAL,"
+                   " frequency_hz REAL, range_v REAL, time_constant_s REAL, overload INTEGER)"));
     }
     store::Statement ins;
-    store::Statement::prepare(db,
-                              variant == 0 ? "INSERT INTO lockin_readings VALUES (?,?,?,?,?,?,?,?,?)"
-                                           : "INSERT INTO r VALUES (?,?,?,?,?,?,?,?,?)",
-                              ins);
+    must(store::Statement::prepare(db,
+                                   variant == 0 ? "INSERT INTO lockin_readings VALUES (?,?,?,?,?,?,?,?,?)"
+                                                : "INSERT INTO r VALUES (?,?,?,?,?,?,?,?,?)",
+                                   ins));
     const auto began = Clock::now();
-    db.exec("BEGIN");
+    must(db.exec("BEGIN"));
     for (std::int64_t s = 1; s <= n; ++s) {
       const auto r = reading(s, t0);
       ins.bind(1, std::int64_t{1});
@@ -77,11 +86,11 @@ void ceiling(const std::string& dir, std::int64_t n, double t0) {
       ins.step();
       ins.reset();
       if (s % 100000 == 0) {
-        db.exec("COMMIT");
-        db.exec("BEGIN");
+        must(db.exec("COMMIT"));
+        must(db.exec("BEGIN"));
       }
     }
-    db.exec("COMMIT");
+    must(db.exec("COMMIT"));
     const double dt = seconds_since(began);
     std::printf("raw SQLite ceiling, %s: %lld rows in %.2f s = %.0f rows/s\n",
                 variant == 0 ? "lphi schema (WITHOUT ROWID (source,seq) + index (source,t))"
@@ -211,8 +220,8 @@ int main(int argc, char** argv) {
   const std::string db = store::database_path(dir);
   {
     store::Database w;
-    store::Database::open(db, store::OpenMode::writer, w);
-    w.exec("PRAGMA wal_checkpoint(TRUNCATE)");
+    must(store::open_writer_connection_for_tests(db, w));
+    must(w.exec("PRAGMA wal_checkpoint(TRUNCATE)"));
   }
   const auto bytes = std::filesystem::file_size(db);
   const auto rows = static_cast<double>(n + n_json);
@@ -220,10 +229,10 @@ int main(int argc, char** argv) {
               static_cast<double>(bytes) / 1e6, rows, static_cast<double>(bytes) / rows,
               static_cast<double>(bytes) / rows * 1.5e8 / 1e9);
   store::StoreReader reader;
-  store::StoreReader::open(db, reader);
+  must(store::StoreReader::open(db, reader));
   store::SourceRow src;
   bool found = false;
-  reader.find_source("lockin-a", src, found);
+  must(reader.find_source("lockin-a", src, found));
   std::mt19937 random(7);
   const double span = 0.05 * static_cast<double>(n);
   std::uniform_real_distribution<double> start(0.0, std::max(0.0, span - 600.0));
@@ -233,10 +242,10 @@ int main(int argc, char** argv) {
   for (int q = 0; q < queries; ++q) {
     const double from = t0 + start(random);
     const auto began = Clock::now();
-    reader.readings(src, from, from + 600.0, [&](const protocol::Readings& chunk) {
+    must(reader.readings(src, from, from + 600.0, [&](const protocol::Readings& chunk) {
       fetched += protocol::reading_count(chunk);
       return true;
-    });
+    }));
     total_s += seconds_since(began);
   }
   std::printf("one sweep's window (600 s = %zu readings) out of %lld rows: %.2f ms on average over %d random windows\n",

@@ -58,6 +58,7 @@ TEST_F(Engine, FitFailedRaisedAndCleared) {
   ASSERT_TRUE(cleared);
   EXPECT_EQ(cleared->state, State::cleared);
   EXPECT_EQ(cleared->cleared_at, std::optional<double>(1200.0));
+  e.settle();  // the engine's writes are the store writer's: wait until they are durable
   EXPECT_EQ(events(cleared->id, "raised"), 1);
   EXPECT_EQ(events(cleared->id, "cleared"), 1);
   // A fit that converged=false is a failure as well.
@@ -87,6 +88,7 @@ TEST_F(Engine, LphiRangeBothSides) {
   EXPECT_EQ(a->id, first);
   EXPECT_EQ(a->count, 2);
   EXPECT_EQ(a->value, std::optional<double>(2e-4));
+  e.settle();  // the engine's writes are the store writer's: wait until they are durable
   EXPECT_EQ(events(first, "updated"), 1);
   // 10.5 nm is inside but not by the 10 % margin (11 nm): no progress.
   FitFact edge = good_fit(3, 30.0);
@@ -131,6 +133,7 @@ TEST_F(Engine, FlappingChiSquareRaisesOnce) {
   all = e->list(true);
   ASSERT_EQ(all.size(), 1u);
   EXPECT_EQ(all[0].state, State::cleared);
+  e.settle();  // the engine's writes are the store writer's: wait until they are durable
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM alert_events WHERE change = 'raised'"), 1);
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM alerts"), 1);
 }
@@ -346,6 +349,7 @@ TEST_F(Engine, HealthUpdatesAreThrottled) {
   ASSERT_TRUE(lag);
   EXPECT_EQ(lag->count, 30);
   EXPECT_EQ(find_rule(e->list(true), "writer-lag", "")->count, 30);  // all: the live state too
+  e.settle();  // the engine's writes are the store writer's: wait until they are durable
   EXPECT_EQ(events(lag->id, "raised"), 1);
   EXPECT_EQ(events(lag->id, "updated"), 0);
 }
@@ -396,6 +400,7 @@ TEST_F(Engine, AcknowledgeLifecycle) {
   const auto missing = e->handle_request({{"type", "ack"}, {"id", 999}});
   EXPECT_EQ(missing["type"], "error");
   EXPECT_NE(missing["detail"].get<std::string>().find("no alert has id 999"), std::string::npos);
+  e.settle();  // the engine's writes are the store writer's: wait until they are durable
   // The stored row keeps every time.
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM alerts WHERE id = " + std::to_string(id) +
                               " AND state = 'cleared' AND raised_at = 100 AND cleared_at = 400"
@@ -476,6 +481,7 @@ TEST_F(Engine, RestartKeepsHealthAlerts) {
   h.sources = {{"mxc", t0 + 140.0, 4}};
   e->on_health(h);
   EXPECT_TRUE(e->list(false).empty());
+  e.settle();  // the engine's writes are the store writer's: wait until they are durable
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM alerts"), 2);  // nothing raised twice
 }
 
@@ -570,13 +576,16 @@ TEST_F(Engine, EventsStoreBothTimes) {
   const auto before = static_cast<std::int64_t>(
       std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count());
   e->on_fit(bad);
+  e.settle();  // the engine's writes are the store writer's: wait until they are durable
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM alert_events WHERE t = 1234.5 AND change = 'raised'"), 1);
   EXPECT_GE(query_int(db, "SELECT CAST(wall_time AS INTEGER) FROM alert_events"), before);
 }
 
 TEST_F(Engine, UnopenableDatabaseIsAnError) {
+  std::unique_ptr<store::StoreWriter> writer;
+  ASSERT_TRUE(store::StoreWriter::open(db, {}, writer).ok());
   std::unique_ptr<AlertEngine> e;
-  const auto s = AlertEngine::create({}, dir.file("no/such/dir/lphi.db"), nullptr, e);
+  const auto s = AlertEngine::create({}, *writer, dir.file("no/such/dir/lphi.db"), nullptr, e);
   EXPECT_FALSE(s.ok());
   EXPECT_NE(s.message().find("no/such/dir"), std::string::npos) << s.message();
   EXPECT_EQ(e, nullptr);

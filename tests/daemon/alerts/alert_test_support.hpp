@@ -1,5 +1,6 @@
 // Shared by the alert tests: an engine on a fresh database in a temp dir,
-// and facts with everything fine unless a test says otherwise.
+// writing through a real store writer, and facts with everything fine unless
+// a test says otherwise.
 #pragma once
 
 #include <sqlite3.h>
@@ -11,16 +12,35 @@
 #include <gtest/gtest.h>
 
 #include "daemon/alerts/alert_engine.hpp"
+#include "daemon/store/writer.hpp"
 #include "tests/support/temp_dir.hpp"
 
 namespace lphi::alerts::testing {
 
-inline std::unique_ptr<AlertEngine> make_engine(const std::string& db_path, const AlertConfig& config = {},
-                                                EventPublisher* events = nullptr) {
+// An engine and the store writer it writes through, as lphid has them. The
+// engine goes first (its kept writes are submitted), then the writer, which
+// writes everything queued: once an EngineOnDisk is gone, every change is on
+// disk.
+struct EngineOnDisk {
+  std::unique_ptr<store::StoreWriter> writer;
   std::unique_ptr<AlertEngine> engine;
-  const Status s = AlertEngine::create(config, db_path, events, engine);
+
+  AlertEngine* operator->() const { return engine.get(); }
+  AlertEngine& operator*() const { return *engine; }
+  // Every change so far is durable: for the tests that read the database.
+  void settle() const { EXPECT_TRUE(engine->wait_stored(30.0)); }
+};
+
+inline EngineOnDisk make_engine(const std::string& db_path, const AlertConfig& config = {},
+                                EventPublisher* events = nullptr) {
+  EngineOnDisk out;
+  const Status w = store::StoreWriter::open(db_path, {}, out.writer);
+  EXPECT_TRUE(w.ok()) << w.message();
+  if (!w) return out;
+  out.writer->start();
+  const Status s = AlertEngine::create(config, *out.writer, db_path, events, out.engine);
   EXPECT_TRUE(s.ok()) << s.message();
-  return engine;
+  return out;
 }
 
 // A fit that is fine for the default rules.

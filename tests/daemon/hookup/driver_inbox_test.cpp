@@ -3,6 +3,7 @@
 // is full so that the driver keeps its readings, and the identity answers
 // recorded in instrument_identities (schema migration 2).
 #include <gtest/gtest.h>
+#include <sqlite3.h>
 
 #include <atomic>
 #include <chrono>

@@ -5,6 +5,7 @@
 // integrity_check says "ok", and the sender's resends have filled in what the
 // kills cut off.
 #include <gtest/gtest.h>
+#include <sqlite3.h>
 
 #include <atomic>
 #include <cmath>

@@ -1,8 +1,10 @@
 // The schema migrations, checked through SQLite's own catalogue (sqlite_master)
 // on a separate connection.
 #include <gtest/gtest.h>
+#include <sqlite3.h>
 
 #include "daemon/store/migrations.hpp"
+#include "daemon/store/test_access.hpp"
 #include "tests/support/temp_dir.hpp"
 
 namespace lphi::store {
@@ -26,7 +28,7 @@ TEST(Migrations, EmbeddedOnesAreNumberedFromOne) {
 TEST(Migrations, FreshDatabaseGetsTheSchemaAndTheVersion) {
   lphi::testing::TempDir dir;
   Database db;
-  ASSERT_TRUE(Database::open(dir.file("lphi.db"), OpenMode::writer, db).ok());
+  ASSERT_TRUE(open_writer_connection_for_tests(dir.file("lphi.db"), db).ok());
   int applied = -1;
   ASSERT_TRUE(apply_migrations(db, embedded_migrations(), &applied).ok());
   EXPECT_EQ(applied, latest_version(embedded_migrations()));
@@ -51,7 +53,7 @@ TEST(Migrations, FreshDatabaseGetsTheSchemaAndTheVersion) {
 TEST(Migrations, NewerDatabaseIsRefusedWithTheVersions) {
   lphi::testing::TempDir dir;
   Database db;
-  ASSERT_TRUE(Database::open(dir.file("lphi.db"), OpenMode::writer, db).ok());
+  ASSERT_TRUE(open_writer_connection_for_tests(dir.file("lphi.db"), db).ok());
   ASSERT_TRUE(apply_migrations(db, embedded_migrations()).ok());
   ASSERT_TRUE(db.exec("INSERT INTO schema_version (version, name) VALUES (999, '0999_future')").ok());
   const Status s = apply_migrations(db, embedded_migrations());
@@ -63,7 +65,7 @@ TEST(Migrations, NewerDatabaseIsRefusedWithTheVersions) {
 TEST(Migrations, AFailingMigrationLeavesNothingBehind) {
   lphi::testing::TempDir dir;
   Database db;
-  ASSERT_TRUE(Database::open(dir.file("lphi.db"), OpenMode::writer, db).ok());
+  ASSERT_TRUE(open_writer_connection_for_tests(dir.file("lphi.db"), db).ok());
   const Migration broken[] = {{1, "0001_ok", "CREATE TABLE first_table (x INTEGER);"},
                               {2, "0002_broken", "CREATE TABLE second_table (x INTEGER); NOT SQL AT ALL;"}};
   const Status s = apply_migrations(db, broken);
@@ -76,7 +78,7 @@ TEST(Migrations, AFailingMigrationLeavesNothingBehind) {
 TEST(Migrations, HolesInTheNumberingAreRefused) {
   lphi::testing::TempDir dir;
   Database db;
-  ASSERT_TRUE(Database::open(dir.file("lphi.db"), OpenMode::writer, db).ok());
+  ASSERT_TRUE(open_writer_connection_for_tests(dir.file("lphi.db"), db).ok());
   const Migration holey[] = {{1, "0001_a", "CREATE TABLE a (x);"}, {3, "0003_c", "CREATE TABLE c (x);"}};
   const Status s = apply_migrations(db, holey);
   EXPECT_FALSE(s.ok());

@@ -1,6 +1,7 @@
 // StoreWriter's promises, checked from outside the writer: through separate
 // read-only SQLite connections (StoreReader) and SQLite's integrity_check.
 #include <gtest/gtest.h>
+#include <sqlite3.h>
 
 #include <atomic>
 #include <chrono>
@@ -10,6 +11,7 @@
 
 #include "daemon/store/reader.hpp"
 #include "daemon/store/writer.hpp"
+#include "daemon/store/test_access.hpp"
 #include "tests/support/temp_dir.hpp"
 
 namespace lphi::store {
@@ -96,8 +98,10 @@ TEST(StoreWriter, AcknowledgesOnlyWhatAnotherConnectionCanAlreadyRead) {
       // already see every reading of the batch: the COMMIT has happened.
       std::int64_t count = 0;
       Statement s;
-      Statement::prepare(reader.database(),
-                         "SELECT count(*) FROM lockin_readings WHERE source_id = ? AND seq BETWEEN ? AND ?", s);
+      EXPECT_TRUE(Statement::prepare(reader.database(),
+                                     "SELECT count(*) FROM lockin_readings WHERE source_id = ? AND seq BETWEEN ? AND ?",
+                                     s)
+                      .ok());
       s.bind(1, row.id);
       s.bind(2, std::int64_t{1 + 100 * b});
       s.bind(3, std::int64_t{100 + 100 * b});
@@ -179,7 +183,7 @@ TEST(StoreWriter, GapsAreRecorded) {
 struct WriteLockHolder {
   Database db;
   explicit WriteLockHolder(const std::string& path) {
-    EXPECT_TRUE(Database::open(path, OpenMode::writer, db).ok());
+    EXPECT_TRUE(open_writer_connection_for_tests(path, db).ok());
     EXPECT_TRUE(db.exec("BEGIN IMMEDIATE").ok());
   }
   void release() { EXPECT_TRUE(db.exec("COMMIT").ok()); }
@@ -338,6 +342,100 @@ TEST(StoreWriter, TasksRunInOrderWithReadingsAndFailAlone) {
   std::vector<std::string> got;
   while (names.step() == SQLITE_ROW) got.push_back(names.column_text(0));
   EXPECT_EQ(got, std::vector<std::string>{"film-t"});
+}
+
+}  // namespace
+}  // namespace lphi::store
+
+namespace lphi::store {
+namespace {
+
+// A job that throws on the writer thread does not terminate lphid: the
+// exception is caught, the transaction it was in is rolled back (the readings
+// submitted with it are not stored and their senders are told so), every job
+// still queued is told the writer failed, and the stats say why.
+TEST(StoreWriter, ATaskThatThrowsFailsTheWriterWithoutTerminating) {
+  WriterOptions options;
+  options.commit_max_time = std::chrono::milliseconds(1000);  // one transaction for the first three
+  Fixture f(options);
+  Results results;
+  // Holds the writer so that everything below is queued behind it.
+  std::mutex gate;
+  std::unique_lock hold(gate);
+  WriteJob blocker;
+  blocker.task = [&gate](Database&) {
+    std::lock_guard wait(gate);
+    return Status::success();
+  };
+  blocker.on_durable = results.callback();
+  ASSERT_TRUE(f.writer->try_submit(blocker));
+  WriteJob readings{f.lockin.id, lockin_run(0, 100), results.callback()};
+  ASSERT_TRUE(f.writer->try_submit(readings));
+  WriteJob throwing;
+  throwing.task = [](Database&) -> Status { throw std::runtime_error("injected fault in a task"); };
+  throwing.on_durable = results.callback();
+  ASSERT_TRUE(f.writer->try_submit(throwing));
+  hold.unlock();
+  ASSERT_TRUE(results.wait_for(3));
+  WriteJob later{f.lockin.id, lockin_run(100, 100), results.callback()};
+  // After the failure the writer takes nothing more.
+  for (int i = 0; i < 100 && f.writer->try_submit(later); ++i) {
+    later = WriteJob{f.lockin.id, lockin_run(100, 100), results.callback()};
+    std::this_thread::sleep_for(std::chrono::milliseconds(10));
+  }
+  EXPECT_FALSE(f.writer->try_submit(later));
+  {
+    std::lock_guard lock(results.mutex);
+    ASSERT_GE(results.done.size(), 3u);
+    for (const WriteResult& r : results.done) {
+      EXPECT_FALSE(r.status.ok());
+      EXPECT_EQ(r.accepted, 0u);
+      EXPECT_TRUE(r.status.code() == StatusCode::internal || r.status.code() == StatusCode::unavailable)
+          << r.status.message();
+    }
+    EXPECT_NE(results.done[2].status.message().find("injected fault in a task"), std::string::npos)
+        << results.done[2].status.message();
+  }
+  const WriterStats stats = f.writer->stats();
+  EXPECT_TRUE(stats.failed);
+  EXPECT_EQ(stats.exceptions, 1u);
+  EXPECT_NE(stats.last_error.find("injected fault in a task"), std::string::npos) << stats.last_error;
+  EXPECT_EQ(stats.queued_jobs, 0u);
+  f.writer->stop();
+  EXPECT_TRUE(f.stored_lockin().empty());  // the readings of the failed transaction are not stored
+}
+
+// A completion callback that throws is caught the same way; the job it
+// belonged to is durable and is not told otherwise afterwards.
+TEST(StoreWriter, ACompletionThatThrowsIsCaught) {
+  Fixture f;
+  std::atomic<int> calls{0};
+  WriteJob job{f.lockin.id, lockin_run(0, 10), [&calls](const WriteResult& r) {
+                 ++calls;
+                 if (r.status.ok()) throw std::logic_error("injected fault in a completion");
+               }};
+  ASSERT_TRUE(f.writer->try_submit(job));
+  for (int i = 0; i < 3000 && !f.writer->stats().failed; ++i) {
+    std::this_thread::sleep_for(std::chrono::milliseconds(1));
+  }
+  const WriterStats stats = f.writer->stats();
+  EXPECT_TRUE(stats.failed);
+  EXPECT_NE(stats.last_error.find("injected fault in a completion"), std::string::npos) << stats.last_error;
+  f.writer->stop();
+  EXPECT_EQ(calls.load(), 1);
+  EXPECT_EQ(f.stored_lockin().size(), 10u);
+}
+
+// Only the store opens a write connection: Database::open refuses the mode,
+// naming the file and the reason.
+TEST(Database, OnlyTheStoreOpensAWriteConnection) {
+  lphi::testing::TempDir dir;
+  Database db;
+  const Status s = Database::open(dir.file("lphi.db"), OpenMode::writer, db);
+  EXPECT_EQ(s.code(), StatusCode::invalid_input);
+  EXPECT_NE(s.message().find("lphi.db"), std::string::npos) << s.message();
+  EXPECT_NE(s.message().find("only the store writer"), std::string::npos) << s.message();
+  EXPECT_FALSE(db.is_open());
 }
 
 }  // namespace
