@@ -1,9 +1,9 @@
 -- lphi schema, migration 3: what the live analysis found.
 --
--- Written by lphid's analysis (its own connection, short transactions), never
--- by the store writer. Times are event times (the readings' own t, seconds
--- since the Unix epoch), so that a replay of the same readings writes the
--- same rows. A sweep is identified by (sample_id, sweep_index): the index the
+-- Written by lphid's analysis, through the store writer's thread (a task in
+-- its transaction, in order with the readings). Times are event times (the
+-- readings' own t, seconds since the Unix epoch), so that a replay of the
+-- same readings writes the same rows. A sweep is identified by (sample_id, sweep_index): the index the
 -- segmenter gave it, which is a function of the readings alone, so a restart
 -- that re-segments the readings finds the rows it wrote before and reuses
 -- their fits instead of fitting again.

@@ -1,6 +1,6 @@
 -- lphi schema, migration 4: the alerts and every change of their state.
 --
--- Written by lphid's alert engine through its own connection. An alert is
+-- Written by lphid's alert engine, through the store writer's thread. An alert is
 -- one (rule, subject) from the moment it is raised until it is cleared; at
 -- most one alert per (rule, subject) is live (not cleared) at a time, and a
 -- condition that returns after a clear is a new alert (a new id).
