@@ -18,18 +18,14 @@ json null_or(const Statement& st, int column) {
   return st.column_is_null(column) ? json(nullptr) : json(st.column_double(column));
 }
 
+// A value to store: NULL for an absent or non-finite number.
 template <class T>
-void bind_finite(Statement& st, int index, const std::optional<T>& v) {
-  if (v && std::isfinite(*v)) {
-    st.bind(index, static_cast<double>(*v));
-  } else {
-    st.bind_null(index);
-  }
+std::optional<double> finite(const std::optional<T>& v) {
+  if (v && std::isfinite(*v)) return static_cast<double>(*v);
+  return std::nullopt;
 }
+std::optional<double> finite(double v) { return finite(std::optional<double>(v)); }
 
-void bind_finite(Statement& st, int index, double v) { bind_finite(st, index, std::optional<double>(v)); }
-
-std::int64_t to_i64(std::size_t n) { return static_cast<std::int64_t>(n); }
 
 std::vector<std::string> string_array(const std::string& text) {
   std::vector<std::string> out;
@@ -106,33 +102,18 @@ Status write_sweeps(const Database& db, std::int64_t sample_id, const PipelineOu
     return db.error("preparing the sweep lookup");
   }
   for (const auto& s : out.sweeps) {
-    st.reset();
-    st.bind(1, sample_id);
-    st.bind(2, s.index);
-    st.bind(3, segment::direction_name(s.direction));
-    st.bind(4, s.t_start_s);
-    st.bind(5, s.t_end_s);
-    st.bind(6, s.field_min_t);
-    st.bind(7, s.field_max_t);
-    st.bind(8, to_i64(s.n_points));
-    st.bind(9, s.temperature.mean_k);
-    st.bind(10, s.temperature.std_k);
-    st.bind(11, s.temperature.min_k);
-    st.bind(12, s.temperature.max_k);
-    st.bind(13, s.temperature_run);
-    st.bind(14, std::int64_t{s.temperature_unstable});
-    st.bind(15, std::int64_t{s.truncated});
-    st.bind(16, to_i64(s.n_overload));
     // |Y/X| is infinite for X = 0: stored as the largest double.
-    st.bind(17, std::isfinite(s.max_quadrature_ratio) ? s.max_quadrature_ratio
-                                                       : std::numeric_limits<double>::max());
-    st.bind(18, s.sample_voltage_v);
-    bind_finite(st, 19, s.excitation_ratio);
-    st.bind(20, s.cooldown);
+    const double quadrature_ratio = std::isfinite(s.max_quadrature_ratio) ? s.max_quadrature_ratio
+                                                                          : std::numeric_limits<double>::max();
+    st.reset();
+    st.bind_all(sample_id, s.index, segment::direction_name(s.direction), s.t_start_s, s.t_end_s,
+                s.field_min_t, s.field_max_t, s.n_points, s.temperature.mean_k, s.temperature.std_k,
+                s.temperature.min_k, s.temperature.max_k, s.temperature_run, s.temperature_unstable,
+                s.truncated, s.n_overload, quadrature_ratio, s.sample_voltage_v, finite(s.excitation_ratio),
+                s.cooldown);
     if (st.step() != SQLITE_DONE) return db.error("storing sweep " + std::to_string(s.index));
     id.reset();
-    id.bind(1, sample_id);
-    id.bind(2, s.index);
+    id.bind_all(sample_id, s.index);
     if (id.step() != SQLITE_ROW) return db.error("finding sweep " + std::to_string(s.index));
     sweep_ids[s.index] = id.column_int(0);
   }
@@ -156,31 +137,13 @@ Status write_fits(const Database& db, std::int64_t sample_id, const PipelineOutp
   }
   for (const auto& f : out.fits) {
     if (f.from_store) continue;
+    std::optional<std::int64_t> combined_with;
+    if (f.combined_with) combined_with = sweep_ids.at(*f.combined_with);
     st.reset();
-    st.bind(1, sweep_ids.at(f.sweep_index));
-    st.bind(2, sample_id);
-    if (f.combined_with) {
-      st.bind(3, sweep_ids.at(*f.combined_with));
-    } else {
-      st.bind_null(3);
-    }
-    st.bind(4, std::int64_t{f.ok});
-    st.bind(5, f.error);
-    st.bind(6, f.model);
-    bind_finite(st, 7, f.lphi_m);
-    bind_finite(st, 8, f.lphi_err_m);
-    bind_finite(st, 9, f.chi2_red);
-    st.bind(10, std::int64_t{f.converged});
-    st.bind(11, json(f.flags).dump());
-    st.bind(12, f.temperature_k);
-    st.bind(13, f.temperature_spread_k);
-    bind_finite(st, 14, f.sigma0_s);
-    bind_finite(st, 15, f.sigma0_err_s);
-    st.bind(16, std::int64_t{f.used_in_dephasing});
-    st.bind(17, json(f.quality).dump());
-    st.bind(18, f.result.dump());
-    st.bind(19, f.t_s);
-    st.bind(20, f.cooldown);
+    st.bind_all(sweep_ids.at(f.sweep_index), sample_id, combined_with, f.ok, f.error, f.model, finite(f.lphi_m),
+                finite(f.lphi_err_m), finite(f.chi2_red), f.converged, json(f.flags).dump(), f.temperature_k,
+                f.temperature_spread_k, finite(f.sigma0_s), finite(f.sigma0_err_s), f.used_in_dephasing,
+                json(f.quality).dump(), f.result.dump(), f.t_s, f.cooldown);
     if (st.step() != SQLITE_DONE) return db.error("storing the fit of sweep " + std::to_string(f.sweep_index));
   }
   return Status::success();
@@ -198,14 +161,8 @@ Status write_zero_field(const Database& db, std::int64_t sample_id, const Pipeli
   }
   for (const auto& z : out.zero_field) {
     st.reset();
-    st.bind(1, sample_id);
-    st.bind(2, z.temperature_run);
-    st.bind(3, z.temperature_k);
-    st.bind(4, z.sigma_s);
-    st.bind(5, z.sigma_err_s);
-    st.bind(6, to_i64(z.n_sweeps));
-    st.bind(7, z.t_s);
-    st.bind(8, z.cooldown);
+    st.bind_all(sample_id, z.temperature_run, z.temperature_k, z.sigma_s, z.sigma_err_s, z.n_sweeps, z.t_s,
+                z.cooldown);
     if (st.step() != SQLITE_DONE) return db.error("storing sigma(0) of a plateau");
   }
   return Status::success();
@@ -224,26 +181,9 @@ Status write_verdicts(const Database& db, std::int64_t sample_id, const Pipeline
   }
   for (const auto& v : out.verdicts) {
     st.reset();
-    st.bind(1, sample_id);
-    st.bind(2, v.sweep_index);
-    st.bind(3, v.t_s);
-    st.bind(4, v.state);
-    if (v.electrons_cooling) {
-      st.bind(5, std::int64_t{*v.electrons_cooling});
-    } else {
-      st.bind_null(5);
-    }
-    if (v.likely_cause) {
-      st.bind(6, *v.likely_cause);
-    } else {
-      st.bind_null(6);
-    }
-    bind_finite(st, 7, v.exponent_p);
-    bind_finite(st, 8, v.lphi_sat_m);
-    bind_finite(st, 9, v.t_sat_k);
-    st.bind(10, to_i64(v.n_points));
-    st.bind(11, v.json.dump());
-    st.bind(12, v.cooldown);
+    st.bind_all(sample_id, v.sweep_index, v.t_s, v.state, v.electrons_cooling, v.likely_cause,
+                finite(v.exponent_p), finite(v.lphi_sat_m), finite(v.t_sat_k), v.n_points, v.json.dump(),
+                v.cooldown);
     if (st.step() != SQLITE_DONE) return db.error("storing the verdict");
   }
   return Status::success();

@@ -18,6 +18,7 @@
 #include <cstdint>
 #include <string>
 #include <string_view>
+#include <type_traits>
 
 #include "schema/status.hpp"
 
@@ -90,10 +91,22 @@ class Statement {
   template <class T>
   void bind_optional(int index, const T& value) {
     if (value) {
-      bind(index, *value);
+      bind_value(index, *value);
     } else {
       bind_null(index);
     }
+  }
+  // Binds `values` to ?1, ?2, ... in order (bind_all_from: from ?first on).
+  // An empty std::optional binds NULL, a bool binds 0 or 1, an unsigned count
+  // binds as a 64-bit integer.
+  template <class... T>
+  void bind_all(const T&... values) {
+    bind_all_from(1, values...);
+  }
+  template <class... T>
+  void bind_all_from(int first, const T&... values) {
+    int index = first;
+    (bind_value(index++, values), ...);
   }
 
   // SQLITE_ROW, SQLITE_DONE or an error code.
@@ -108,6 +121,19 @@ class Statement {
   sqlite3_stmt* handle() const { return stmt_; }
 
  private:
+  template <class T>
+  void bind_value(int index, const T& value) {
+    if constexpr (std::is_same_v<T, bool>) {
+      bind(index, std::int64_t{value ? 1 : 0});
+    } else if constexpr (std::is_same_v<T, std::size_t>) {
+      bind(index, static_cast<std::int64_t>(value));
+    } else if constexpr (requires { value.has_value(); }) {
+      bind_optional(index, value);
+    } else {
+      bind(index, value);
+    }
+  }
+
   sqlite3_stmt* stmt_ = nullptr;
 };
 
