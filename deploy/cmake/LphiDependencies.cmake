@@ -2,22 +2,23 @@
 # configure step with the name of the package that provides it; deploy/setup
 # installs them all.
 
-macro(lphi_require_config name debian_package)
-  find_package(${name} ${ARGN} CONFIG QUIET)
-  if(NOT ${name}_FOUND)
+# Stops the configure step when `found` is false, naming the package.
+macro(lphi_stop_unless found what debian_package)
+  if(NOT ${found})
     message(FATAL_ERROR
-      "lphi needs ${name}: install the Debian package '${debian_package}' "
+      "lphi needs ${what}: install the Debian package '${debian_package}' "
       "(deploy/setup does this when run as root).")
   endif()
 endmacro()
 
+macro(lphi_require_config name debian_package)
+  find_package(${name} ${ARGN} CONFIG QUIET)
+  lphi_stop_unless(${name}_FOUND ${name} ${debian_package})
+endmacro()
+
 macro(lphi_require_module name debian_package)
   find_package(${name} ${ARGN} QUIET)
-  if(NOT ${name}_FOUND)
-    message(FATAL_ERROR
-      "lphi needs ${name}: install the Debian package '${debian_package}' "
-      "(deploy/setup does this when run as root).")
-  endif()
+  lphi_stop_unless(${name}_FOUND ${name} ${debian_package})
 endmacro()
 
 find_package(PkgConfig QUIET)
@@ -27,11 +28,7 @@ endif()
 
 macro(lphi_require_pkgconfig prefix module debian_package)
   pkg_check_modules(${prefix} QUIET IMPORTED_TARGET ${module})
-  if(NOT ${prefix}_FOUND)
-    message(FATAL_ERROR
-      "lphi needs ${module}: install the Debian package '${debian_package}' "
-      "(deploy/setup does this when run as root).")
-  endif()
+  lphi_stop_unless(${prefix}_FOUND ${module} ${debian_package})
 endmacro()
 
 lphi_require_module(Boost libboost-dev 1.74)

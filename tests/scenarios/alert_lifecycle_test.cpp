@@ -26,20 +26,13 @@
 namespace lphi::testing::lifecycle {
 namespace {
 
+using lphi::testing::alerts_of;
 using lphi::testing::LiveRun;
 using nlohmann::json;
 
 // Unix time of the recordings' relative time 0, so that event times in the
 // alerts can be compared with the scenario's programme.
 constexpr double kEpoch = 1.7e9;
-
-std::vector<json> alerts_of(const json& all, const std::string& rule) {
-  std::vector<json> out;
-  if (!all.is_array()) return out;
-  for (const auto& a : all)
-    if (a.value("rule", "") == rule) out.push_back(a);
-  return out;
-}
 
 std::string describe(const std::vector<json>& alerts) {
   std::string s;

@@ -25,16 +25,9 @@
 
 namespace {
 
+using lphi::testing::alerts_of;
 using lphi::testing::LiveRun;
 using nlohmann::json;
-
-std::vector<json> alerts_of(const json& all, const std::string& rule) {
-  std::vector<json> out;
-  if (!all.is_array()) return out;
-  for (const auto& a : all)
-    if (a.value("rule", "") == rule) out.push_back(a);
-  return out;
-}
 
 bool raised_and_cleared(const std::vector<json>& alerts) {
   return std::any_of(alerts.begin(), alerts.end(), [](const json& a) {

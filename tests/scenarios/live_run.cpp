@@ -182,4 +182,12 @@ bool copy_recording(const std::string& from, const std::string& to, double offse
   return static_cast<bool>(out);
 }
 
+std::vector<nlohmann::json> alerts_of(const nlohmann::json& all, const std::string& rule) {
+  std::vector<nlohmann::json> out;
+  if (!all.is_array()) return out;
+  for (const auto& a : all)
+    if (a.value("rule", "") == rule) out.push_back(a);
+  return out;
+}
+
 }  // namespace lphi::testing

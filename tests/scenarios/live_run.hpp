@@ -90,4 +90,8 @@ class LiveRun {
 bool copy_recording(const std::string& from, const std::string& to, double offset_s, double from_s,
                     double to_s);
 
+// The alerts of one rule in an `lphi alerts --all --json` array (none for
+// anything else).
+std::vector<nlohmann::json> alerts_of(const nlohmann::json& all, const std::string& rule);
+
 }  // namespace lphi::testing

@@ -10,26 +10,8 @@ namespace lphi::testing {
 
 using Clock = std::chrono::steady_clock;
 
-std::string test_config(const std::string& sample_extra, const std::string& tail) {
-  return R"toml(
-[daemon]
-log_level = "info"
-[store]
-commit_max_ms = 20
-[ingest]
-time_backward_tolerance_s = 60.0
-[[source]]
-name = "lockin-a"
-kind = "lockin"
-[[source]]
-name = "mxc"
-kind = "thermometer"
-[[source]]
-name = "magnet"
-kind = "field"
-[[sample]]
-name = "film-a"
-model = "hln2d"
+std::string test_sample(const std::string& name, const std::string& extra) {
+  std::string toml = "[[sample]]\nname = \"" + name + "\"\n" + R"toml(model = "hln2d"
 squares = 5.0
 width_m = 20e-6
 thickness_m = 10e-9
@@ -37,7 +19,23 @@ excitation_a = 10e-9
 lockin = "lockin-a"
 thermometer = "mxc"
 field = "magnet"
-)toml" + sample_extra + (sample_extra.empty() || sample_extra.back() == '\n' ? "" : "\n") + tail;
+)toml";
+  return toml + extra + (extra.empty() || extra.back() == '\n' ? "" : "\n");
+}
+
+std::string test_config(const std::string& sample_extra, const std::string& tail) {
+  std::string toml = R"toml([daemon]
+log_level = "info"
+[store]
+commit_max_ms = 20
+[ingest]
+time_backward_tolerance_s = 60.0
+)toml";
+  for (const auto& [name, kind] : {std::pair{"lockin-a", "lockin"}, std::pair{"mxc", "thermometer"},
+                                   std::pair{"magnet", "field"}}) {
+    toml += std::string("[[source]]\nname = \"") + name + "\"\nkind = \"" + kind + "\"\n";
+  }
+  return toml + test_sample("film-a", sample_extra) + tail;
 }
 
 DaemonProcess::DaemonProcess(std::string data_dir, std::string config_path)

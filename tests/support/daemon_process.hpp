@@ -18,6 +18,9 @@ namespace lphi::testing {
 // (film-a, hln2d) using them. sample_extra is appended to the [[sample]]
 // table (more keys of film-a), tail after it (more tables, e.g. [alerts.*]).
 std::string test_config(const std::string& sample_extra = "", const std::string& tail = "");
+// One [[sample]] table named `name` on those three sources (hln2d, 5 squares,
+// 20 um wide, 10 nm thick, 10 nA), with `extra` keys appended.
+std::string test_sample(const std::string& name, const std::string& extra = "");
 
 class DaemonProcess {
  public:

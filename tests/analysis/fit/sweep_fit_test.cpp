@@ -10,21 +10,15 @@
 #include "analysis/conductance.hpp"
 #include "analysis/constants.hpp"
 #include "analysis/synthetic.hpp"
+#include "tests/analysis/fit/prepared_sweep.hpp"
 
 namespace lc = lphi::conductance;
 namespace lf = lphi::fit;
 namespace ls = lphi::synthetic;
 using lphi::mc::Model;
+using lphi::testing::prepared;
 
 namespace {
-
-lc::PreparedSweep prepared(const ls::SweepTruth& truth, const ls::SweepPlan& plan) {
-  std::vector<lc::FieldPoint> raw;
-  for (const auto& p : ls::make_sweep(truth, plan)) raw.push_back({p.field_t, p.rsq_ohm});
-  lc::PreparedSweep out;
-  EXPECT_TRUE(lc::prepare_sweep(raw, out).ok);
-  return out;
-}
 
 lc::PreparedSweep weak_localization(double noise_ohm = 0.2) {
   ls::SweepTruth truth;  // hln2d, L_phi = 200 nm, alpha = 1, 1 kohm

@@ -14,23 +14,17 @@
 #include "analysis/magnetoconductance.hpp"
 #include "analysis/sweep_fit.hpp"
 #include "analysis/synthetic.hpp"
+#include "tests/analysis/fit/prepared_sweep.hpp"
 
 namespace lc = lphi::conductance;
 namespace lf = lphi::fit;
 namespace ls = lphi::synthetic;
 using lphi::mc::Model;
+using lphi::testing::prepared;
 
 namespace {
 
 constexpr double kWl = lphi::si::wl_conductance_s;
-
-lc::PreparedSweep prepared(const ls::SweepTruth& truth, const ls::SweepPlan& plan) {
-  std::vector<lc::FieldPoint> raw;
-  for (const auto& p : ls::make_sweep(truth, plan)) raw.push_back({p.field_t, p.rsq_ohm});
-  lc::PreparedSweep out;
-  EXPECT_TRUE(lc::prepare_sweep(raw, out).ok);
-  return out;
-}
 
 // fit_sweep's own chi2_red, recomputed from fitted_delta_sigma_s and
 // fitted_parameter_count: sum over the window of ((y - f)/(e^2/(pi h)))^2

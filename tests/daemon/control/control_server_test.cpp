@@ -12,6 +12,7 @@
 
 #include "daemon/control/control_server.hpp"
 #include "daemon/health/failed_parts.hpp"
+#include "tests/support/control_client.hpp"
 #include "tests/support/temp_dir.hpp"
 
 namespace {
@@ -20,20 +21,11 @@ using nlohmann::json;
 using namespace std::chrono_literals;
 
 json ask(zmq::socket_t& socket, const json& request, std::chrono::milliseconds timeout = 5000ms) {
-  const std::string text = request.dump();
-  socket.send(zmq::buffer(text), zmq::send_flags::none);
-  zmq::pollitem_t item{socket.handle(), 0, ZMQ_POLLIN, 0};
-  zmq::poll(&item, 1, timeout);
-  zmq::message_t reply;
-  if (!(item.revents & ZMQ_POLLIN) || !socket.recv(reply, zmq::recv_flags::dontwait)) return nullptr;
-  return json::parse(reply.to_string_view(), nullptr, false);
+  return lphi::testing::request_reply(socket, request, timeout);
 }
 
 zmq::socket_t client(zmq::context_t& context, const std::string& endpoint) {
-  zmq::socket_t s(context, zmq::socket_type::dealer);
-  s.set(zmq::sockopt::linger, 0);
-  s.connect(endpoint);
-  return s;
+  return lphi::testing::control_client(context, endpoint);
 }
 
 TEST(ControlServer, RoutesByTypeAndNamesWhatWasWrong) {

@@ -15,6 +15,7 @@
 #include "daemon/config/data_dir.hpp"
 #include "drivers/sender/sender.hpp"
 #include "daemon/client/control_request.hpp"
+#include "tests/support/control_client.hpp"
 #include "tests/support/daemon_process.hpp"
 #include "tests/daemon/live/synthetic_cooldown.hpp"
 #include "tests/support/temp_dir.hpp"
@@ -31,16 +32,8 @@ std::string live_config() {
 // One request on the control socket, its reply (null after the timeout).
 json ask(const std::string& data_dir, const json& request, std::chrono::milliseconds timeout = 5000ms) {
   zmq::context_t context(1);
-  zmq::socket_t socket(context, zmq::socket_type::dealer);
-  socket.set(zmq::sockopt::linger, 0);
-  socket.connect(lphi::config::client_endpoints(data_dir).control);
-  const std::string text = request.dump();
-  socket.send(zmq::buffer(text), zmq::send_flags::none);
-  zmq::pollitem_t item{socket.handle(), 0, ZMQ_POLLIN, 0};
-  zmq::poll(&item, 1, timeout);
-  zmq::message_t reply;
-  if (!(item.revents & ZMQ_POLLIN) || !socket.recv(reply, zmq::recv_flags::dontwait)) return nullptr;
-  return json::parse(reply.to_string_view(), nullptr, false);
+  zmq::socket_t socket = lphi::testing::control_client(context, lphi::config::client_endpoints(data_dir).control);
+  return lphi::testing::request_reply(socket, request, timeout);
 }
 
 // Polls {"type":"progress"} until the analysis is idle (bounded).
@@ -265,20 +258,8 @@ std::string text_of(const json& j, const char* key) {
 TEST(LiveDaemon, ASampleWhoseAnalysisThrowsStopsAloneAndIsListedAsFailed) {
   lphi::testing::TempDir dir;
   const std::string config_path = dir.file("lphid.toml");
-  const std::string film_b = R"toml(
-[[sample]]
-name = "film-b"
-model = "hln2d"
-squares = 5.0
-width_m = 20e-6
-thickness_m = 10e-9
-excitation_a = 10e-9
-lockin = "lockin-a"
-thermometer = "mxc"
-field = "magnet"
-gain = 100.0
-plateau_min_duration_s = 60.0
-)toml";
+  const std::string film_b =
+      "\n" + lphi::testing::test_sample("film-b", "gain = 100.0\nplateau_min_duration_s = 60.0\n");
   std::ofstream(config_path) << lphi::testing::test_config("gain = 100.0\nplateau_min_duration_s = 60.0\n", film_b);
   lphi::live::testing::CooldownPlan plan;
   plan.closing_ramp_t = 0.02;
