@@ -1,116 +1,15 @@
 #include "schema/protocol/codec.hpp"
 
-#include "schema/protocol/limits.hpp"
-
-#include <array>
-#include <cmath>
-#include <limits>
+#include "schema/protocol/codec_detail.hpp"
+#include "schema/protocol/msgpack_shape.hpp"
 
 namespace lphi::protocol {
 
 using nlohmann::json;
+using detail::refuse;
+using detail::type_name;
 
 namespace {
-
-constexpr std::size_t max_msgpack_depth = 32;
-
-std::optional<Refusal> refuse(Reason reason, std::string detail) {
-  return Refusal{reason, std::move(detail)};
-}
-
-std::uint64_t read_be(const unsigned char* p, std::size_t n) {
-  std::uint64_t v = 0;
-  for (std::size_t i = 0; i < n; ++i) v = (v << 8) | p[i];
-  return v;
-}
-
-// Walks MessagePack without recursion and checks that it is complete, has no
-// trailing bytes and nests at most max_msgpack_depth deep. nlohmann's reader
-// recurses once per nesting level, so a hostile frame of nested arrays would
-// otherwise exhaust the stack.
-std::optional<std::string> check_msgpack_shape(std::string_view frame) {
-  const auto* data = reinterpret_cast<const unsigned char*>(frame.data());
-  const std::size_t size = frame.size();
-  std::size_t pos = 0;
-  std::vector<std::uint64_t> pending{1};
-  auto need = [&](std::size_t n) { return size - pos >= n; };
-  while (!pending.empty()) {
-    if (pending.back() == 0) {
-      pending.pop_back();
-      continue;
-    }
-    --pending.back();
-    if (!need(1)) return "truncated MessagePack";
-    const unsigned char b = data[pos++];
-    std::uint64_t skip = 0;       // payload bytes after the header
-    std::uint64_t children = 0;   // items inside a container
-    bool container = false;
-    auto sized = [&](std::size_t len_bytes, std::size_t extra) -> bool {
-      if (!need(len_bytes)) return false;
-      skip = read_be(data + pos, len_bytes) + extra;
-      pos += len_bytes;
-      return true;
-    };
-    auto counted = [&](std::size_t len_bytes, std::uint64_t per_entry) -> bool {
-      if (!need(len_bytes)) return false;
-      children = read_be(data + pos, len_bytes) * per_entry;
-      pos += len_bytes;
-      container = true;
-      return true;
-    };
-    bool ok = true;
-    if (b <= 0x7f || b >= 0xe0 || b == 0xc0 || b == 0xc2 || b == 0xc3) {
-    } else if (b >= 0x80 && b <= 0x8f) {
-      children = std::uint64_t{b & 0x0fu} * 2;
-      container = true;
-    } else if (b >= 0x90 && b <= 0x9f) {
-      children = b & 0x0fu;
-      container = true;
-    } else if (b >= 0xa0 && b <= 0xbf) {
-      skip = b & 0x1fu;
-    } else {
-      switch (b) {
-        case 0xc4: ok = sized(1, 0); break;
-        case 0xc5: ok = sized(2, 0); break;
-        case 0xc6: ok = sized(4, 0); break;
-        case 0xc7: ok = sized(1, 1); break;
-        case 0xc8: ok = sized(2, 1); break;
-        case 0xc9: ok = sized(4, 1); break;
-        case 0xca: skip = 4; break;
-        case 0xcb: skip = 8; break;
-        case 0xcc: case 0xd0: skip = 1; break;
-        case 0xcd: case 0xd1: skip = 2; break;
-        case 0xce: case 0xd2: skip = 4; break;
-        case 0xcf: case 0xd3: skip = 8; break;
-        case 0xd4: skip = 2; break;
-        case 0xd5: skip = 3; break;
-        case 0xd6: skip = 5; break;
-        case 0xd7: skip = 9; break;
-        case 0xd8: skip = 17; break;
-        case 0xd9: ok = sized(1, 0); break;
-        case 0xda: ok = sized(2, 0); break;
-        case 0xdb: ok = sized(4, 0); break;
-        case 0xdc: ok = counted(2, 1); break;
-        case 0xdd: ok = counted(4, 1); break;
-        case 0xde: ok = counted(2, 2); break;
-        case 0xdf: ok = counted(4, 2); break;
-        default: return "byte 0xc1 is not MessagePack";
-      }
-    }
-    if (!ok || skip > size - pos) return "truncated MessagePack";
-    pos += skip;
-    if (container && children > 0) {
-      // Every item takes at least one byte: a count beyond the frame is a lie.
-      if (children > size - pos) return "truncated MessagePack (a container claims more items than the frame holds)";
-      if (pending.size() > max_msgpack_depth) return "MessagePack nested deeper than 32 levels";
-      pending.push_back(children);
-    }
-  }
-  if (pos != size) return "trailing bytes after the MessagePack message";
-  return std::nullopt;
-}
-
-std::string type_name(const json& v) { return v.type_name(); }
 
 std::optional<Refusal> read_source_name(const json& message, const Limits& limits,
                                         std::string& out) {
@@ -137,138 +36,6 @@ std::optional<Refusal> read_batch_id(const json& message, std::optional<std::uin
     return std::nullopt;
   }
   return refuse(Reason::wrong_type, "\"batch\" must be a non-negative integer");
-}
-
-// The keys a reading may carry. `owner` is the kind the key belongs to, or
-// nothing for keys common to every kind.
-enum class Slot { seq, t, x_v, y_v, frequency_hz, range_v, time_constant_s, overload,
-                  temperature_k, resistance_ohm, field_t };
-constexpr std::size_t slot_count = 11;
-struct KeySpec {
-  std::string_view key;
-  Slot slot;
-  std::optional<SourceKind> owner;
-  bool required;
-};
-constexpr std::array<KeySpec, slot_count> key_specs = {{
-    {"seq", Slot::seq, std::nullopt, true},
-    {"t", Slot::t, std::nullopt, true},
-    {"x_v", Slot::x_v, SourceKind::lockin, true},
-    {"y_v", Slot::y_v, SourceKind::lockin, true},
-    {"frequency_hz", Slot::frequency_hz, SourceKind::lockin, false},
-    {"range_v", Slot::range_v, SourceKind::lockin, false},
-    {"time_constant_s", Slot::time_constant_s, SourceKind::lockin, false},
-    {"overload", Slot::overload, SourceKind::lockin, false},
-    {"temperature_k", Slot::temperature_k, SourceKind::thermometer, true},
-    {"resistance_ohm", Slot::resistance_ohm, SourceKind::thermometer, false},
-    {"field_t", Slot::field_t, SourceKind::field, true},
-}};
-
-const KeySpec* find_key(std::string_view key) {
-  for (const auto& spec : key_specs) {
-    if (spec.key == key) return &spec;
-  }
-  return nullptr;
-}
-
-struct Fields {
-  std::array<bool, slot_count> present{};
-  std::array<double, slot_count> value{};
-  std::int64_t seq = 0;
-  bool overload = false;
-  bool has(Slot s) const { return present[static_cast<std::size_t>(s)]; }
-  double get(Slot s) const { return value[static_cast<std::size_t>(s)]; }
-  std::optional<double> optional(Slot s) const {
-    return has(s) ? std::optional<double>(get(s)) : std::nullopt;
-  }
-};
-
-using limits::max_seq;
-
-std::optional<Refusal> read_fields(const json& reading, SourceKind kind, Fields& f) {
-  if (!reading.is_object()) {
-    return refuse(Reason::not_an_object, "a reading must be a map, not " + type_name(reading));
-  }
-  for (auto it = reading.begin(); it != reading.end(); ++it) {
-    const std::string& key = it.key();
-    const KeySpec* spec = find_key(key);
-    if (spec == nullptr) {
-      if (!is_valid_utf8(key)) return refuse(Reason::unknown_field, "a key that is not UTF-8");
-      return refuse(Reason::unknown_field,
-                    "unknown key \"" + key.substr(0, 64) + "\" in a " +
-                        std::string(kind_name(kind)) + " reading");
-    }
-    if (spec->owner && *spec->owner != kind) {
-      return refuse(Reason::wrong_kind, "key \"" + key + "\" belongs to " +
-                                            std::string(kind_name(*spec->owner)) +
-                                            " readings, the source is a " +
-                                            std::string(kind_name(kind)));
-    }
-    const json& v = *it;
-    const auto i = static_cast<std::size_t>(spec->slot);
-    if (spec->slot == Slot::seq) {
-      if (v.is_number_unsigned()) {
-        const auto u = v.get<std::uint64_t>();
-        if (u > static_cast<std::uint64_t>(max_seq)) {
-          return refuse(Reason::bad_seq, "seq is larger than 2^53");
-        }
-        f.seq = static_cast<std::int64_t>(u);
-      } else if (v.is_number_integer()) {
-        f.seq = v.get<std::int64_t>();
-        if (f.seq < 0) return refuse(Reason::bad_seq, "seq is negative");
-      } else {
-        return refuse(Reason::wrong_type, "seq must be an integer, not " + type_name(v));
-      }
-    } else if (spec->slot == Slot::overload) {
-      if (!v.is_boolean()) {
-        return refuse(Reason::wrong_type, "overload must be true or false, not " + type_name(v));
-      }
-      f.overload = v.get<bool>();
-    } else {
-      if (!v.is_number()) {
-        return refuse(Reason::wrong_type, key + " must be a number, not " + type_name(v));
-      }
-      f.value[i] = v.get<double>();
-      if (!std::isfinite(f.value[i])) return refuse(Reason::not_finite, key + " is not finite");
-    }
-    f.present[i] = true;
-  }
-  for (const auto& spec : key_specs) {
-    if (spec.required && (!spec.owner || *spec.owner == kind) && !f.has(spec.slot)) {
-      return refuse(Reason::missing_field, "the reading has no \"" + std::string(spec.key) + "\"");
-    }
-  }
-  if (!(f.get(Slot::t) > 0.0)) {
-    return refuse(Reason::time_out_of_range, "t must be positive seconds since the Unix epoch");
-  }
-  auto positive = [&](Slot s, std::string_view name) -> std::optional<Refusal> {
-    if (f.has(s) && !(f.get(s) > 0.0)) {
-      return refuse(Reason::value_out_of_range, std::string(name) + " must be positive");
-    }
-    return std::nullopt;
-  };
-  switch (kind) {
-    case SourceKind::lockin:
-      if (auto r = positive(Slot::frequency_hz, "frequency_hz")) return r;
-      if (auto r = positive(Slot::range_v, "range_v")) return r;
-      if (auto r = positive(Slot::time_constant_s, "time_constant_s")) return r;
-      break;
-    case SourceKind::thermometer: {
-      const double temperature_k = f.get(Slot::temperature_k);
-      if (!limits::temperature_in_range(temperature_k)) {
-        return refuse(Reason::temperature_out_of_range,
-                      "temperature_k must lie between 0 and 1000 K");
-      }
-      if (auto r = positive(Slot::resistance_ohm, "resistance_ohm")) return r;
-      break;
-    }
-    case SourceKind::field:
-      if (!limits::field_in_range(f.get(Slot::field_t))) {
-        return refuse(Reason::field_out_of_range, "|field_t| must be below 50 T");
-      }
-      break;
-  }
-  return std::nullopt;
 }
 
 }  // namespace
@@ -354,7 +121,7 @@ std::optional<Refusal> decode_frame(std::string_view frame, const Limits& limits
     out = json::parse(frame.begin(), frame.end(), nullptr, /*allow_exceptions=*/false);
     if (out.is_discarded()) return refuse(Reason::bad_encoding, "the frame is not valid JSON");
   } else {
-    if (auto why = check_msgpack_shape(frame)) return refuse(Reason::bad_encoding, *why);
+    if (auto why = detail::check_msgpack_shape(frame)) return refuse(Reason::bad_encoding, *why);
     out = json::from_msgpack(frame.begin(), frame.end(), /*strict=*/true,
                              /*allow_exceptions=*/false);
     if (out.is_discarded()) return refuse(Reason::bad_encoding, "the frame is not valid MessagePack");
@@ -428,49 +195,6 @@ std::optional<Refusal> read_batch_header(const json& message, const Limits& limi
   return std::nullopt;
 }
 
-void read_readings(const json& readings, SourceKind kind, Readings& accepted,
-                   std::vector<RejectedReading>& rejected) {
-  std::optional<std::int64_t> previous_seq;
-  std::size_t index = 0;
-  for (const auto& reading : readings) {
-    Fields f;
-    auto refusal = read_fields(reading, kind, f);
-    if (!refusal && previous_seq && f.seq <= *previous_seq) {
-      refusal = Refusal{Reason::seq_not_increasing,
-                        "seq " + std::to_string(f.seq) + " follows seq " +
-                            std::to_string(*previous_seq) + " in the same batch"};
-    }
-    if (refusal) {
-      RejectedReading r;
-      r.index = index;
-      if (f.has(Slot::seq)) r.seq = f.seq;
-      r.reason = refusal->reason;
-      r.detail = std::move(refusal->detail);
-      rejected.push_back(std::move(r));
-    } else {
-      previous_seq = f.seq;
-      switch (kind) {
-        case SourceKind::lockin: {
-          LockinReading r{f.seq, f.get(Slot::t), f.get(Slot::x_v), f.get(Slot::y_v),
-                          f.optional(Slot::frequency_hz), f.optional(Slot::range_v),
-                          f.optional(Slot::time_constant_s),
-                          f.has(Slot::overload) ? std::optional<bool>(f.overload) : std::nullopt};
-          std::get<std::vector<LockinReading>>(accepted).push_back(r);
-          break;
-        }
-        case SourceKind::thermometer:
-          std::get<std::vector<ThermometerReading>>(accepted).push_back(
-              {f.seq, f.get(Slot::t), f.get(Slot::temperature_k), f.optional(Slot::resistance_ohm)});
-          break;
-        case SourceKind::field:
-          std::get<std::vector<FieldReading>>(accepted).push_back(
-              {f.seq, f.get(Slot::t), f.get(Slot::field_t)});
-          break;
-      }
-    }
-    ++index;
-  }
-}
 
 json reading_to_json(const LockinReading& r) {
   json j = {{"seq", r.seq}, {"t", r.t}, {"x_v", r.x_v}, {"y_v", r.y_v}};

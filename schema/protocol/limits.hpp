@@ -1,5 +1,5 @@
 // The limits of a reading that lphi accepts, in one place: the codec refuses
-// a reading outside them (protocol/codec.cpp), `lphi replay` refuses such a
+// a reading outside them (protocol/reading_checks.cpp), `lphi replay` refuses such a
 // row of a recording before sending it (daemon/client/recording_csv.cpp).
 // They are sanity bounds on what a dilution or helium cryostat can report,
 // not physics: a value beyond them is a unit or wiring mistake.

@@ -1,6 +1,6 @@
 // The recorded-cooldown reader of `lphi replay` (daemon/client/recording_csv.hpp):
 // the format its header documents, and the limits lphid puts on a reading
-// (schema/protocol/codec.cpp: T in (0, 1000) K, |B| < 50 T), checked before
+// (schema/protocol/reading_checks.cpp: T in (0, 1000) K, |B| < 50 T), checked before
 // anything is sent. Expected values are the cells written in each test.
 #include <gmock/gmock.h>
 #include <gtest/gtest.h>
@@ -98,7 +98,7 @@ TEST(RecordingCsv, ErrorsNameTheLineAndTheColumn) {
               HasSubstr("line 3, column 'time_s': time runs backward"));
   EXPECT_THAT(scan_error(h + "0,0.5,0,1,0\n1700000000,0.5,0,1,0\n"),
               HasSubstr("line 3, column 'time_s': 1700000000 is a Unix time, but the recording began with relative"));
-  // The limits lphid applies to every reading (protocol/codec.cpp).
+  // The limits lphid applies to every reading (protocol/reading_checks.cpp).
   EXPECT_THAT(scan_error(h + "0,0,0,1,0\n"), HasSubstr("line 2, column 'temperature_k': 0 K is outside (0, 1000) K"));
   EXPECT_THAT(scan_error(h + "0,-1,0,1,0\n"), HasSubstr("column 'temperature_k'"));
   EXPECT_THAT(scan_error(h + "0,0.5,50,1,0\n"), HasSubstr("line 2, column 'field_t': 50 T is not below 50 T"));
