@@ -25,6 +25,8 @@
 // with its next stored change, which writes the whole row. A writer that
 // has failed (store/writer.hpp) takes nothing more: a change is then not
 // kept but counted as a store error, and an acknowledgement is refused.
+// (That queue is AlertWrites, alert_writes.hpp; the rules' judgements of
+// each fact are in alert_rules.hpp.)
 //
 // Thread safety: every public member may be called from any thread.
 #pragma once
