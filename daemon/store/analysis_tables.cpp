@@ -26,6 +26,37 @@ std::optional<double> finite(const std::optional<T>& v) {
 }
 std::optional<double> finite(double v) { return finite(std::optional<double>(v)); }
 
+// Runs the query `sql` with ?1 bound to `sample` (NULL for every sample) and
+// hands each row to on_row; `what` names the failure.
+template <class OnRow>
+Status select_each(const Database& db, std::string_view sql, const std::optional<std::string>& sample,
+                   const std::string& what, OnRow on_row) {
+  Statement st;
+  if (auto s = Statement::prepare(db, sql, st); !s) return s;
+  st.bind_optional(1, sample);
+  int rc = 0;
+  while ((rc = st.step()) == SQLITE_ROW) on_row(st);
+  if (rc != SQLITE_DONE) return db.error(what);
+  return Status::success();
+}
+
+// Runs the insert `sql` once for each element of `rows` that bind_row binds
+// (it returns false to skip one), stopping at the first failure, which
+// what_failed(row) names.
+template <class Rows, class BindRow, class WhatFailed>
+Status insert_each(const Database& db, std::string_view sql, const std::string& statement, const Rows& rows,
+                   BindRow bind_row, WhatFailed what_failed) {
+  if (std::empty(rows)) return Status::success();
+  Statement st;
+  if (!Statement::prepare(db, sql, st)) return db.error("preparing the " + statement);
+  for (const auto& row : rows) {
+    st.reset();
+    if (!bind_row(st, row)) continue;
+    if (st.step() != SQLITE_DONE) return db.error(what_failed(row));
+  }
+  return Status::success();
+}
+
 
 std::vector<std::string> string_array(const std::string& text) {
   std::vector<std::string> out;
@@ -125,68 +156,54 @@ Status write_fits(const Database& db, std::int64_t sample_id, const PipelineOutp
   bool new_fits = false;
   for (const auto& f : out.fits) new_fits = new_fits || !f.from_store;
   if (!new_fits) return Status::success();
-  Statement st;
-  if (!Statement::prepare(
-           db,
-           "INSERT OR REPLACE INTO fits (sweep_id, sample_id, combined_with, ok, error, model, lphi_m, lphi_err_m,"
-           " chi2_red, converged, flags_json, temperature_k, temperature_spread_k, sigma0_s, sigma0_err_s,"
-           " used_in_dephasing, quality_json, result_json, t, cooldown)"
-           " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20)",
-           st)) {
-    return db.error("preparing the fit insert");
-  }
-  for (const auto& f : out.fits) {
-    if (f.from_store) continue;
-    std::optional<std::int64_t> combined_with;
-    if (f.combined_with) combined_with = sweep_ids.at(*f.combined_with);
-    st.reset();
-    st.bind_all(sweep_ids.at(f.sweep_index), sample_id, combined_with, f.ok, f.error, f.model, finite(f.lphi_m),
-                finite(f.lphi_err_m), finite(f.chi2_red), f.converged, json(f.flags).dump(), f.temperature_k,
-                f.temperature_spread_k, finite(f.sigma0_s), finite(f.sigma0_err_s), f.used_in_dephasing,
-                json(f.quality).dump(), f.result.dump(), f.t_s, f.cooldown);
-    if (st.step() != SQLITE_DONE) return db.error("storing the fit of sweep " + std::to_string(f.sweep_index));
-  }
-  return Status::success();
+  return insert_each(
+      db,
+      "INSERT OR REPLACE INTO fits (sweep_id, sample_id, combined_with, ok, error, model, lphi_m, lphi_err_m,"
+      " chi2_red, converged, flags_json, temperature_k, temperature_spread_k, sigma0_s, sigma0_err_s,"
+      " used_in_dephasing, quality_json, result_json, t, cooldown)"
+      " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20)",
+      "fit insert", out.fits,
+      [&](Statement& st, const live::FitRecord& f) {
+        if (f.from_store) return false;
+        std::optional<std::int64_t> combined_with;
+        if (f.combined_with) combined_with = sweep_ids.at(*f.combined_with);
+        st.bind_all(sweep_ids.at(f.sweep_index), sample_id, combined_with, f.ok, f.error, f.model,
+                    finite(f.lphi_m), finite(f.lphi_err_m), finite(f.chi2_red), f.converged, json(f.flags).dump(),
+                    f.temperature_k, f.temperature_spread_k, finite(f.sigma0_s), finite(f.sigma0_err_s),
+                    f.used_in_dephasing, json(f.quality).dump(), f.result.dump(), f.t_s, f.cooldown);
+        return true;
+      },
+      [](const live::FitRecord& f) { return "storing the fit of sweep " + std::to_string(f.sweep_index); });
 }
 
 Status write_zero_field(const Database& db, std::int64_t sample_id, const PipelineOutput& out) {
-  if (out.zero_field.empty()) return Status::success();
-  Statement st;
-  if (!Statement::prepare(
-           db,
-           "INSERT OR REPLACE INTO zero_field_points (sample_id, temperature_run, temperature_k, sigma_s,"
-           " sigma_err_s, n_sweeps, t, cooldown) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
-           st)) {
-    return db.error("preparing the zero-field insert");
-  }
-  for (const auto& z : out.zero_field) {
-    st.reset();
-    st.bind_all(sample_id, z.temperature_run, z.temperature_k, z.sigma_s, z.sigma_err_s, z.n_sweeps, z.t_s,
-                z.cooldown);
-    if (st.step() != SQLITE_DONE) return db.error("storing sigma(0) of a plateau");
-  }
-  return Status::success();
+  return insert_each(
+      db,
+      "INSERT OR REPLACE INTO zero_field_points (sample_id, temperature_run, temperature_k, sigma_s,"
+      " sigma_err_s, n_sweeps, t, cooldown) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
+      "zero-field insert", out.zero_field,
+      [&](Statement& st, const live::ZeroFieldRecord& z) {
+        st.bind_all(sample_id, z.temperature_run, z.temperature_k, z.sigma_s, z.sigma_err_s, z.n_sweeps, z.t_s,
+                    z.cooldown);
+        return true;
+      },
+      [](const live::ZeroFieldRecord&) { return std::string("storing sigma(0) of a plateau"); });
 }
 
 Status write_verdicts(const Database& db, std::int64_t sample_id, const PipelineOutput& out) {
-  if (out.verdicts.empty()) return Status::success();
-  Statement st;
-  if (!Statement::prepare(
-           db,
-           "INSERT OR REPLACE INTO verdicts (sample_id, sweep_index, t, state, electrons_cooling, likely_cause,"
-           " exponent_p, lphi_sat_m, t_sat_k, n_points, verdict_json, cooldown)"
-           " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
-           st)) {
-    return db.error("preparing the verdict insert");
-  }
-  for (const auto& v : out.verdicts) {
-    st.reset();
-    st.bind_all(sample_id, v.sweep_index, v.t_s, v.state, v.electrons_cooling, v.likely_cause,
-                finite(v.exponent_p), finite(v.lphi_sat_m), finite(v.t_sat_k), v.n_points, v.json.dump(),
-                v.cooldown);
-    if (st.step() != SQLITE_DONE) return db.error("storing the verdict");
-  }
-  return Status::success();
+  return insert_each(
+      db,
+      "INSERT OR REPLACE INTO verdicts (sample_id, sweep_index, t, state, electrons_cooling, likely_cause,"
+      " exponent_p, lphi_sat_m, t_sat_k, n_points, verdict_json, cooldown)"
+      " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
+      "verdict insert", out.verdicts,
+      [&](Statement& st, const live::VerdictRecord& v) {
+        st.bind_all(sample_id, v.sweep_index, v.t_s, v.state, v.electrons_cooling, v.likely_cause,
+                    finite(v.exponent_p), finite(v.lphi_sat_m), finite(v.t_sat_k), v.n_points, v.json.dump(),
+                    v.cooldown);
+        return true;
+      },
+      [](const live::VerdictRecord&) { return std::string("storing the verdict"); });
 }
 
 }  // namespace
@@ -241,85 +258,65 @@ Status write_analysis_records(const Database& db, std::int64_t sample_id, const 
 }
 
 Status list_sweeps(const Database& db, const std::optional<std::string>& sample, json& out) {
-  Statement st;
-  if (auto s = Statement::prepare(
-          db,
-          "SELECT s.id, sm.name, s.sweep_index, s.direction, s.t_start, s.t_end, s.field_min_t, s.field_max_t,"
-          " s.n_points, s.temperature_k, s.temperature_spread_k, s.temperature_unstable, s.truncated,"
-          " s.n_overload, s.max_quadrature_ratio, s.excitation_ratio,"
-          " EXISTS (SELECT 1 FROM fits f WHERE f.sweep_id = s.id OR f.combined_with = s.id), s.cooldown"
-          " FROM sweeps s JOIN samples sm ON sm.id = s.sample_id"
-          " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
-          st);
-      !s) {
-    return s;
-  }
-  st.bind_optional(1, sample);
   out = json::array();
-  json& sweeps = out;
-  int rc = 0;
-  while ((rc = st.step()) == SQLITE_ROW) {
-    sweeps.push_back({{"sweep_id", st.column_int(0)},
-                      {"sample", st.column_text(1)},
-                      {"index", st.column_int(2)},
-                      {"direction", st.column_text(3)},
-                      {"t_start", st.column_double(4)},
-                      {"t_end", st.column_double(5)},
-                      {"field_min_t", st.column_double(6)},
-                      {"field_max_t", st.column_double(7)},
-                      {"n_points", st.column_int(8)},
-                      {"temperature_k", st.column_double(9)},
-                      {"temperature_spread_k", st.column_double(10)},
-                      {"temperature_unstable", st.column_int(11) != 0},
-                      {"truncated", st.column_int(12) != 0},
-                      {"n_overload", st.column_int(13)},
-                      {"max_quadrature_ratio", st.column_double(14)},
-                      {"excitation_ratio", null_or(st, 15)},
-                      {"fitted", st.column_int(16) != 0},
-                      {"cooldown", st.column_int(17)}});
-  }
-  if (rc != SQLITE_DONE) return db.error("listing sweeps");
-  return Status::success();
+  return select_each(
+      db,
+      "SELECT s.id, sm.name, s.sweep_index, s.direction, s.t_start, s.t_end, s.field_min_t, s.field_max_t,"
+      " s.n_points, s.temperature_k, s.temperature_spread_k, s.temperature_unstable, s.truncated,"
+      " s.n_overload, s.max_quadrature_ratio, s.excitation_ratio,"
+      " EXISTS (SELECT 1 FROM fits f WHERE f.sweep_id = s.id OR f.combined_with = s.id), s.cooldown"
+      " FROM sweeps s JOIN samples sm ON sm.id = s.sample_id"
+      " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
+      sample, "listing sweeps", [&](const Statement& st) {
+        out.push_back({{"sweep_id", st.column_int(0)},
+                       {"sample", st.column_text(1)},
+                       {"index", st.column_int(2)},
+                       {"direction", st.column_text(3)},
+                       {"t_start", st.column_double(4)},
+                       {"t_end", st.column_double(5)},
+                       {"field_min_t", st.column_double(6)},
+                       {"field_max_t", st.column_double(7)},
+                       {"n_points", st.column_int(8)},
+                       {"temperature_k", st.column_double(9)},
+                       {"temperature_spread_k", st.column_double(10)},
+                       {"temperature_unstable", st.column_int(11) != 0},
+                       {"truncated", st.column_int(12) != 0},
+                       {"n_overload", st.column_int(13)},
+                       {"max_quadrature_ratio", st.column_double(14)},
+                       {"excitation_ratio", null_or(st, 15)},
+                       {"fitted", st.column_int(16) != 0},
+                       {"cooldown", st.column_int(17)}});
+      });
 }
 
 Status list_fits(const Database& db, const std::optional<std::string>& sample, json& out) {
-  Statement st;
-  if (auto s = Statement::prepare(
-          db,
-          "SELECT f.sweep_id, sm.name, s.sweep_index, f.result_json, f.temperature_k, f.temperature_spread_k,"
-          " COALESCE(c.t_start, s.t_start), s.t_end, f.ok, f.error, f.used_in_dephasing, f.quality_json,"
-          " c.sweep_index, f.cooldown"
-          " FROM fits f JOIN sweeps s ON s.id = f.sweep_id JOIN samples sm ON sm.id = f.sample_id"
-          " LEFT JOIN sweeps c ON c.id = f.combined_with"
-          " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
-          st);
-      !s) {
-    return s;
-  }
-  st.bind_optional(1, sample);
   out = json::array();
-  json& fits = out;
-  int rc = 0;
-  while ((rc = st.step()) == SQLITE_ROW) {
-    json j = json::parse(st.column_text(3), nullptr, false);
-    if (!j.is_object()) j = json::object();
-    j["sweep_id"] = st.column_int(0);
-    j["sample"] = st.column_text(1);
-    j["sweep_index"] = st.column_int(2);
-    j["temperature_k"] = st.column_double(4);
-    j["temperature_spread_k"] = st.column_double(5);
-    j["t_start"] = st.column_double(6);
-    j["t_end"] = st.column_double(7);
-    j["ok"] = st.column_int(8) != 0;
-    j["error"] = st.column_text(9);
-    j["used_in_dephasing"] = st.column_int(10) != 0;
-    j["quality"] = json::parse(st.column_text(11), nullptr, false);
-    j["combined_with"] = st.column_is_null(12) ? json(nullptr) : json(st.column_int(12));
-    j["cooldown"] = st.column_int(13);
-    fits.push_back(std::move(j));
-  }
-  if (rc != SQLITE_DONE) return db.error("listing fits");
-  return Status::success();
+  return select_each(
+      db,
+      "SELECT f.sweep_id, sm.name, s.sweep_index, f.result_json, f.temperature_k, f.temperature_spread_k,"
+      " COALESCE(c.t_start, s.t_start), s.t_end, f.ok, f.error, f.used_in_dephasing, f.quality_json,"
+      " c.sweep_index, f.cooldown"
+      " FROM fits f JOIN sweeps s ON s.id = f.sweep_id JOIN samples sm ON sm.id = f.sample_id"
+      " LEFT JOIN sweeps c ON c.id = f.combined_with"
+      " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
+      sample, "listing fits", [&](const Statement& st) {
+        json j = json::parse(st.column_text(3), nullptr, false);
+        if (!j.is_object()) j = json::object();
+        j["sweep_id"] = st.column_int(0);
+        j["sample"] = st.column_text(1);
+        j["sweep_index"] = st.column_int(2);
+        j["temperature_k"] = st.column_double(4);
+        j["temperature_spread_k"] = st.column_double(5);
+        j["t_start"] = st.column_double(6);
+        j["t_end"] = st.column_double(7);
+        j["ok"] = st.column_int(8) != 0;
+        j["error"] = st.column_text(9);
+        j["used_in_dephasing"] = st.column_int(10) != 0;
+        j["quality"] = json::parse(st.column_text(11), nullptr, false);
+        j["combined_with"] = st.column_is_null(12) ? json(nullptr) : json(st.column_int(12));
+        j["cooldown"] = st.column_int(13);
+        out.push_back(std::move(j));
+      });
 }
 
 Status latest_verdict(const Database& db, const std::string& sample, std::optional<json>& out) {

@@ -1,3 +1,6 @@
+// The store writer (writer.hpp): one algorithm, the group-commit loop that
+// takes queued jobs, writes them in one transaction, commits, then tells each
+// job it is durable; with the checkpointer beside it.
 #include "daemon/store/writer.hpp"
 
 #include <spdlog/spdlog.h>

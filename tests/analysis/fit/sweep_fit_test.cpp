@@ -10,13 +10,8 @@
 #include "analysis/conductance.hpp"
 #include "analysis/constants.hpp"
 #include "analysis/synthetic.hpp"
-#include "tests/analysis/fit/prepared_sweep.hpp"
+#include "tests/analysis/fit/fit_test_names.hpp"
 
-namespace lc = lphi::conductance;
-namespace lf = lphi::fit;
-namespace ls = lphi::synthetic;
-using lphi::mc::Model;
-using lphi::testing::prepared;
 
 namespace {
 

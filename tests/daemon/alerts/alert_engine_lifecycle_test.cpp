@@ -14,13 +14,7 @@
 namespace lphi::alerts {
 namespace {
 
-using testing::find_rule;
-using testing::good_fit;
-using testing::good_sweep;
-using testing::make_engine;
-using testing::query_int;
-
-using testing::Engine;
+using namespace testing;  // the Engine fixture and its helpers
 
 TEST_F(Engine, AcknowledgeLifecycle) {
   auto e = make_engine(db);

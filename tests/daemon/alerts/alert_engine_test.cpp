@@ -16,13 +16,7 @@
 namespace lphi::alerts {
 namespace {
 
-using testing::find_rule;
-using testing::good_fit;
-using testing::good_sweep;
-using testing::make_engine;
-using testing::query_int;
-
-using testing::Engine;
+using namespace testing;  // the Engine fixture and its helpers
 
 // Raised by the first bad fact, still live after clear_after - 1 good ones,
 // cleared by the clear_after-th at that fact's event time.
