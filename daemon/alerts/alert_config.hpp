@@ -54,6 +54,21 @@ struct FitChi2Rule {
   double hysteresis = 0.2;
 };
 
+// "field-offset": the field axis of a fit is off by a sizeable fraction of
+// B_phi: the larger of |field offset| (the field reading at which the sweep's
+// cusp lies: a remanent field in the magnet, or a lag when the sweep is one
+// leg) and |lag field| (half the difference of the up and down legs'
+// offsets) over B_phi is above max_fraction. The sweep is centred before it
+// is fitted, so L_phi is corrected; the alert says that the magnet or the
+// sweep rate needs attention.
+struct FieldOffsetRule {
+  bool enabled = true;
+  Severity severity = Severity::warning;
+  std::int64_t clear_after = 2;
+  double max_fraction = 0.2;
+  double hysteresis = 0.2;
+};
+
 // "verdict-saturating": the verdict enters "saturating".
 struct VerdictSaturatingRule {
   bool enabled = true;
@@ -146,6 +161,7 @@ struct AlertConfig {
   LphiRangeRule lphi_range;
   FitFailedRule fit_failed;
   FitChi2Rule fit_chi2;
+  FieldOffsetRule field_offset;
   VerdictSaturatingRule verdict_saturating;
   VerdictSaturatedRule verdict_saturated;
   ElectronsNotCoolingRule electrons_not_cooling;
@@ -172,7 +188,7 @@ inline constexpr std::string_view rule_names[] = {
     "verdict-saturating", "verdict-saturated", "electrons-not-cooling",
     "temperature-unstable", "source-silent",   "lockin-overload",
     "quadrature",       "excitation-heating",  "gap",
-    "disk-space",       "writer-lag"};
+    "disk-space",       "writer-lag",          "field-offset"};
 
 // Fills `out` from the [alerts] table (nullptr: no table, the defaults).
 // Unknown keys, wrong types and values out of range are appended to

@@ -67,6 +67,11 @@ struct FitFact {
   double lphi_m = 0.0, lphi_err_m = 0.0;
   double temperature_k = 0.0;
   std::vector<std::string> flags;
+  // The field axis (analysis/sweep_analysis.hpp), when the sweep could be
+  // centred: the offset applied, the lag field from the sweep and its
+  // partner of the other direction, and B_phi of the fit.
+  std::optional<double> field_offset_t, lag_field_t, b_phi_t;
+  std::string advice;  // one line with a number, or empty
 };
 
 // One completed sweep (before or without a fit).

@@ -1,6 +1,7 @@
 // The alert rules (alert_rules.hpp): one observation per rule from each fact.
 #include "daemon/alerts/alert_rules.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <utility>
 
@@ -35,6 +36,11 @@ Judgement below_limit(double value, double limit, double hysteresis) {
 template <class Rule>
 RuleSettings settings(const Rule& r) {
   return {r.enabled, r.severity, r.clear_after};
+}
+
+// The fit's advice, as a sentence to append to a message ("" when none).
+std::string with_advice(const std::string& advice) {
+  return advice.empty() ? std::string() : "; advice: " + advice;
 }
 
 std::string format_bytes(double bytes) {
@@ -77,9 +83,35 @@ void judge_fit(const AlertConfig& c, const FitFact& f, const ObservationSink& ev
   chi2.context["chi2_red"] = optional_json(chi2.value);
   chi2.context["max_chi2_red"] = c.fit_chi2.max_chi2_red;
   chi2.judgement = above_limit(f.chi2_red, c.fit_chi2.max_chi2_red, c.fit_chi2.hysteresis);
-  chi2.message = fmt::format("sample {}: chi2_red = {:.3g} for sweep {} is above {:g}", f.sample,
-                             f.chi2_red, f.sweep_index, c.fit_chi2.max_chi2_red);
+  chi2.message = fmt::format("sample {}: chi2_red = {:.3g} for sweep {} is above {:g}{}", f.sample,
+                             f.chi2_red, f.sweep_index, c.fit_chi2.max_chi2_red,
+                             with_advice(f.advice));
   evaluate("fit-chi2", f.sample, settings(c.fit_chi2), std::move(chi2), f.t, false);
+
+  // field-offset: judged only when the fit has a B_phi and the sweep could be
+  // centred; the value is the larger of |offset| and |lag field| over B_phi.
+  if (f.b_phi_t && *f.b_phi_t > 0.0 && std::isfinite(*f.b_phi_t) && f.field_offset_t) {
+    Observation offset;
+    const double off = std::abs(*f.field_offset_t);
+    const double lag = f.lag_field_t ? std::abs(*f.lag_field_t) : 0.0;
+    const double fraction = std::max(off, lag) / *f.b_phi_t;
+    offset.value = finite(fraction);
+    offset.context = base;
+    offset.context["field_offset_t"] = optional_json(f.field_offset_t);
+    offset.context["lag_field_t"] = optional_json(f.lag_field_t);
+    offset.context["b_phi_t"] = *f.b_phi_t;
+    offset.context["fraction_of_b_phi"] = optional_json(offset.value);
+    offset.context["max_fraction"] = c.field_offset.max_fraction;
+    offset.context["advice"] = f.advice;
+    offset.judgement = above_limit(fraction, c.field_offset.max_fraction, c.field_offset.hysteresis);
+    offset.message = fmt::format(
+        "sample {}: sweep {} has a field offset of {:.3g} mT{} against B_phi = {:.3g} mT "
+        "({:.2g} of B_phi, limit {:g}); it was centred before the fit{}",
+        f.sample, f.sweep_index, *f.field_offset_t * 1e3,
+        f.lag_field_t ? fmt::format(" and a lag field of {:.3g} mT", *f.lag_field_t * 1e3) : "",
+        *f.b_phi_t * 1e3, fraction, c.field_offset.max_fraction, with_advice(f.advice));
+    evaluate("field-offset", f.sample, settings(c.field_offset), std::move(offset), f.t, false);
+  }
 
   Observation range;
   range.value = finite(f.lphi_m);

@@ -61,7 +61,8 @@ using ObservationSink = std::function<void(std::string_view rule, const std::str
 // JSON for an optional value: null when absent or not finite.
 nlohmann::json optional_json(const std::optional<double>& v);
 
-// fit-failed, fit-chi2, lphi-range.
+// fit-failed, fit-chi2, field-offset (only when the fit has a B_phi and a
+// field offset), lphi-range.
 void judge_fit(const AlertConfig& config, const FitFact& fact, const ObservationSink& evaluate);
 // temperature-unstable, lockin-overload, quadrature, excitation-heating.
 void judge_sweep(const AlertConfig& config, const SweepFact& fact, const ObservationSink& evaluate);

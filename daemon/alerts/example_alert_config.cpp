@@ -43,6 +43,13 @@ clear_after = 2
 max_chi2_red = 3.0
 hysteresis = 0.2
 
+[alerts.field-offset]      # the field offset or lag of a sweep above max_fraction of B_phi
+enabled = true
+severity = "warning"
+clear_after = 2
+max_fraction = 0.2
+hysteresis = 0.2
+
 [alerts.verdict-saturating]  # the verdict enters "saturating"
 enabled = true
 severity = "info"

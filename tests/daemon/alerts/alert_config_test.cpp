@@ -44,6 +44,9 @@ void expect_same(const AlertConfig& a, const AlertConfig& b) {
   expect_common(a.fit_chi2, b.fit_chi2, "fit-chi2");
   EXPECT_EQ(a.fit_chi2.max_chi2_red, b.fit_chi2.max_chi2_red);
   EXPECT_EQ(a.fit_chi2.hysteresis, b.fit_chi2.hysteresis);
+  expect_common(a.field_offset, b.field_offset, "field-offset");
+  EXPECT_EQ(a.field_offset.max_fraction, b.field_offset.max_fraction);
+  EXPECT_EQ(a.field_offset.hysteresis, b.field_offset.hysteresis);
   expect_common(a.verdict_saturating, b.verdict_saturating, "verdict-saturating");
   expect_common(a.verdict_saturated, b.verdict_saturated, "verdict-saturated");
   expect_common(a.electrons_not_cooling, b.electrons_not_cooling, "electrons-not-cooling");

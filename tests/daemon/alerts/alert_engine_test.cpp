@@ -125,6 +125,49 @@ TEST_F(Engine, FlappingChiSquareRaisesOnce) {
   EXPECT_EQ(query_int(db, "SELECT count(*) FROM alerts"), 1);
 }
 
+// field-offset: the larger of |offset| and |lag field| over B_phi against
+// 0.2. A 0.3 mT remanent field on a sweep with B_phi = 0.5 mT (0.6 of B_phi)
+// raises it with the fit's advice in the message; the same offset against
+// B_phi = 5 mT (0.06) does not, and two such fits clear it (clear_after 2).
+// A lag field alone raises it too; a fit without a centred field axis (no
+// offset) leaves the rule alone.
+TEST_F(Engine, FieldOffsetIsJudgedAgainstBphiWithTheAdvice) {
+  auto e = make_engine(db);
+  FitFact f = good_fit(1, 60.0);
+  f.b_phi_t = 0.5e-3;
+  f.field_offset_t = 0.3e-3;
+  f.advice = "the field offset is 0.30 mT: the magnet holds a remanent field";
+  e->on_fit(f);
+  auto raised = find_rule(e->list(false), "field-offset");
+  ASSERT_TRUE(raised);
+  EXPECT_NEAR(raised->value.value_or(0.0), 0.6, 1e-12);
+  EXPECT_NE(raised->message.find("0.3 mT"), std::string::npos) << raised->message;
+  EXPECT_NE(raised->message.find("remanent field"), std::string::npos) << raised->message;
+  FitFact wide = good_fit(2, 120.0);
+  wide.b_phi_t = 5e-3;
+  wide.field_offset_t = 0.3e-3;
+  e->on_fit(wide);
+  EXPECT_TRUE(find_rule(e->list(false), "field-offset"));
+  wide = good_fit(3, 180.0);
+  wide.b_phi_t = 5e-3;
+  wide.field_offset_t = 0.3e-3;
+  e->on_fit(wide);
+  EXPECT_FALSE(find_rule(e->list(false), "field-offset"));
+  FitFact lag = good_fit(4, 240.0);
+  lag.b_phi_t = 1e-3;
+  lag.field_offset_t = 0.0;
+  lag.lag_field_t = -0.4e-3;
+  e->on_fit(lag);
+  raised = find_rule(e->list(false), "field-offset");
+  ASSERT_TRUE(raised);
+  EXPECT_NEAR(raised->value.value_or(0.0), 0.4, 1e-12);
+  FitFact unmeasured = good_fit(5, 300.0);
+  unmeasured.b_phi_t = 1e-3;
+  e->on_fit(unmeasured);
+  e->on_fit(unmeasured);
+  EXPECT_TRUE(find_rule(e->list(false), "field-offset")) << "a fit without an offset judges nothing";
+}
+
 TEST_F(Engine, SweepRulesRaisedAndCleared) {
   auto e = make_engine(db);
   SweepFact s = good_sweep(1, 500.0);
