@@ -84,9 +84,29 @@ std::optional<double> number_at(const json& object, std::string_view key) {
   return v;
 }
 
+namespace {
+
+// A string member, or "" when absent or not a string.
+std::string string_at(const json& object, std::string_view key) {
+  if (!object.is_object()) return {};
+  const auto it = object.find(key);
+  return it != object.end() && it->is_string() ? it->get<std::string>() : std::string();
+}
+
+// The field offset the sweep was centred on, in mT with its error ("-"
+// when the sweep could not be centred).
+std::string field_offset_at(const json& object) {
+  const auto offset = number_at(object, "field_offset_t");
+  if (!offset) return dash;
+  const auto error = number_at(object, "field_offset_err_t");
+  return format_with_error(*offset * 1e3, error ? std::optional<double>(*error * 1e3) : std::nullopt, "mT");
+}
+
+}  // namespace
+
 void print_sweeps_table(const json& sweeps, std::ostream& out) {
-  Table table({"sample", "cooldown", "sweep", "dir", "start (UTC)", "length", "field", "points", "T",
-                     "T spread", "fitted", "notes"});
+  Table table({"sample", "cooldown", "sweep", "dir", "start (UTC)", "length", "field", "offset", "points",
+                     "T", "T spread", "fitted", "notes"});
   for (const auto& s : sweeps) {
     std::string field = dash;
     if (const auto lo = number_at(s, "field_min_t"), hi = number_at(s, "field_max_t"); lo && hi) {
@@ -101,9 +121,10 @@ void print_sweeps_table(const json& sweeps, std::ostream& out) {
     if (flag_at(s, "temperature_unstable")) note("T unstable");
     if (flag_at(s, "truncated")) note("truncated");
     if (const auto n = number_at(s, "n_overload"); n && *n > 0) note(format_number(*n, 10) + " overloaded");
+    if (const std::string advice = string_at(s, "advice"); !advice.empty()) note(advice);
     table.add({text_at(s, "sample"), text_at(s, "cooldown"), text_at(s, "index"), text_at(s, "direction"),
                time_at(s, "t_start"), length,
-               field, text_at(s, "n_points"), temperature_at(s, "temperature_k"),
+               field, field_offset_at(s), text_at(s, "n_points"), temperature_at(s, "temperature_k"),
                temperature_at(s, "temperature_spread_k"), text_at(s, "fitted"), notes.empty() ? dash : notes});
   }
   table.print(out);
@@ -111,7 +132,7 @@ void print_sweeps_table(const json& sweeps, std::ostream& out) {
 
 void print_fits_table(const json& fits, std::ostream& out) {
   Table table({"sample", "cooldown", "sweep", "T", "L_phi", "alpha", "L_so", "chi2_red", "points", "window",
-                     "used", "notes"});
+                     "offset", "used", "notes"});
   for (const auto& f : fits) {
     std::string notes;
     auto note = [&](const std::string& n) { notes += (notes.empty() ? "" : "; ") + n; };
@@ -129,12 +150,20 @@ void print_fits_table(const json& fits, std::ostream& out) {
         if (flag.is_string()) note(flag.get<std::string>());
       }
     }
+    // Why a fit is left out of L_phi(T): the quality reasons, each a name
+    // and its sentence; then the one line of advice.
+    if (f.is_object() && f.contains("quality") && f["quality"].is_array() && !flag_at(f, "used_in_dephasing")) {
+      for (const auto& reason : f["quality"]) {
+        if (reason.is_string()) note(reason.get<std::string>());
+      }
+    }
+    if (const std::string advice = string_at(f, "advice"); !advice.empty()) note("advice: " + advice);
     const auto window = number_at(f, "field_window_t");
     table.add({text_at(f, "sample"), text_at(f, "cooldown"), text_at(f, "sweep_index"),
                temperature_at(f, "temperature_k"),
                length_at(f, "lphi_m", "lphi_err_m"), value_with_error(f, "alpha", "alpha_err"),
                length_at(f, "lso_m", "lso_err_m"), text_at(f, "chi2_red"), text_at(f, "n_points"),
-               window ? format_field_mt(*window) : dash, text_at(f, "used_in_dephasing"),
+               window ? format_field_mt(*window) : dash, field_offset_at(f), text_at(f, "used_in_dephasing"),
                notes.empty() ? dash : notes});
   }
   table.print(out);
@@ -188,7 +217,13 @@ std::string event_line(std::string_view topic, const json& body) {
     } else {
       line += "L_phi " + length_at(body, "lphi_m", "lphi_err_m") + ", alpha " +
               value_with_error(body, "alpha", "alpha_err") + ", chi2_red " + text_at(body, "chi2_red");
+      if (number_at(body, "field_offset_t")) line += ", field offset " + field_offset_at(body);
+      if (body.is_object() && body.contains("used_in_dephasing") && body["used_in_dephasing"].is_boolean() &&
+          !body["used_in_dephasing"].get<bool>()) {
+        line += ", not used";
+      }
     }
+    if (const std::string advice = string_at(body, "advice"); !advice.empty()) line += "; advice: " + advice;
   } else if (topic == "verdict") {
     line += text_at(body, "sample") + " " + text_at(body, "state") + ", p " +
             value_with_error(body, "exponent_p", "exponent_p_err") + ", T_sat " +

@@ -264,7 +264,12 @@ Status list_sweeps(const Database& db, const std::optional<std::string>& sample,
       "SELECT s.id, sm.name, s.sweep_index, s.direction, s.t_start, s.t_end, s.field_min_t, s.field_max_t,"
       " s.n_points, s.temperature_k, s.temperature_spread_k, s.temperature_unstable, s.truncated,"
       " s.n_overload, s.max_quadrature_ratio, s.excitation_ratio,"
-      " EXISTS (SELECT 1 FROM fits f WHERE f.sweep_id = s.id OR f.combined_with = s.id), s.cooldown"
+      " EXISTS (SELECT 1 FROM fits f WHERE f.sweep_id = s.id OR f.combined_with = s.id), s.cooldown,"
+      // The field axis and the advice of the sweep's own fit (not of a
+      // combined fit that it is the earlier sweep of), from its result JSON.
+      " (SELECT json_extract(f.result_json, '$.field_offset_t') FROM fits f WHERE f.sweep_id = s.id),"
+      " (SELECT json_extract(f.result_json, '$.field_offset_err_t') FROM fits f WHERE f.sweep_id = s.id),"
+      " (SELECT json_extract(f.result_json, '$.advice') FROM fits f WHERE f.sweep_id = s.id)"
       " FROM sweeps s JOIN samples sm ON sm.id = s.sample_id"
       " WHERE ?1 IS NULL OR sm.name = ?1 ORDER BY sm.name, s.sweep_index",
       sample, "listing sweeps", [&](const Statement& st) {
@@ -285,7 +290,10 @@ Status list_sweeps(const Database& db, const std::optional<std::string>& sample,
                        {"max_quadrature_ratio", st.column_double(14)},
                        {"excitation_ratio", null_or(st, 15)},
                        {"fitted", st.column_int(16) != 0},
-                       {"cooldown", st.column_int(17)}});
+                       {"cooldown", st.column_int(17)},
+                       {"field_offset_t", null_or(st, 18)},
+                       {"field_offset_err_t", null_or(st, 19)},
+                       {"advice", st.column_is_null(20) ? json("") : json(st.column_text(20))}});
       });
 }
 

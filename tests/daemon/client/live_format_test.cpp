@@ -56,6 +56,34 @@ TEST(LiveFormat, FitsTableShowsReadableUnitsAndDashesForNull) {
   EXPECT_EQ(std::count(text.begin(), text.end(), '\n'), 3);
 }
 
+// The field axis and the advice: the offset each sweep was centred on, in mT
+// with its error, in the sweeps and fits tables; a fit left out of L_phi(T)
+// shows why, and the advice line appears in the tables and the watch line.
+TEST(LiveFormat, FieldOffsetReasonsAndAdviceAreShown) {
+  const json sweeps = json::parse(R"([{"sample":"film-a","cooldown":1,"index":5,"direction":"down",
+    "t_start":1e9,"t_end":1.000001e9,"n_points":998,"temperature_k":0.03,"fitted":true,
+    "field_offset_t":3.1e-4,"field_offset_err_t":2e-6,
+    "advice":"the field offset is 0.31 mT: the magnet holds a remanent field"}])");
+  std::ostringstream out;
+  lphi::client::print_sweeps_table(sweeps, out);
+  EXPECT_THAT(out.str(), HasSubstr("0.3100 +/- 0.0020 mT"));
+  EXPECT_THAT(out.str(), HasSubstr("the magnet holds a remanent field"));
+  const json fits = json::parse(R"([{"sample":"film-a","cooldown":1,"sweep_index":5,"temperature_k":0.03,
+    "lphi_m":1e-6,"lphi_err_m":1e-8,"ok":true,"converged":true,"used_in_dephasing":false,
+    "quality":["temperature-ramp: the temperature changed by 40.0 %"],
+    "field_offset_t":3.1e-4,"field_offset_err_t":2e-6,
+    "advice":"slow the sweep to 0.5 mT/min near zero field"}])");
+  std::ostringstream f;
+  lphi::client::print_fits_table(fits, f);
+  EXPECT_THAT(f.str(), HasSubstr("0.3100 +/- 0.0020 mT"));
+  EXPECT_THAT(f.str(), HasSubstr("temperature-ramp: the temperature changed by 40.0 %"));
+  EXPECT_THAT(f.str(), HasSubstr("advice: slow the sweep to 0.5 mT/min near zero field"));
+  const std::string line = event_line("fit", fits[0]);
+  EXPECT_THAT(line, HasSubstr("field offset 0.3100 +/- 0.0020 mT"));
+  EXPECT_THAT(line, HasSubstr("not used"));
+  EXPECT_THAT(line, HasSubstr("; advice: slow the sweep to 0.5 mT/min near zero field"));
+}
+
 // The cooldown a sweep, fit or verdict belongs to is shown beside its
 // index: the second column of the tables, a row of the verdict.
 TEST(LiveFormat, TablesShowTheCooldown) {
