@@ -12,6 +12,8 @@ namespace lphi::drift {
 namespace {
 
 constexpr std::size_t kBins = 16;
+// A usable sweep's drift is stated when it is at least this fraction of T.
+constexpr double kStatedDrift = 0.005;
 
 DriftJudgement refused(std::string why) {
   DriftJudgement j;
@@ -45,15 +47,17 @@ DriftJudgement judge(std::span<const DriftPoint> points, double field_centre_t, 
   j.exponent_s = exponent_s;
   j.lphi_rel_err = lphi_rel_err;
 
-  // The least-squares line T = a + b (t - t_mean).
+  // The least-squares line T = a + b (t - t_mean). The means are summed as
+  // differences from the first point, so that a constant temperature has
+  // exactly its own value as the mean.
   const double n = static_cast<double>(in.size());
   double t_mean = 0.0, temp_mean = 0.0;
   for (const DriftPoint& p : in) {
-    t_mean += p.t_s;
-    temp_mean += p.temperature_k;
+    t_mean += p.t_s - in.front().t_s;
+    temp_mean += p.temperature_k - in.front().temperature_k;
   }
-  t_mean /= n;
-  temp_mean /= n;
+  t_mean = in.front().t_s + t_mean / n;
+  temp_mean = in.front().temperature_k + temp_mean / n;
   double stt = 0.0, sty = 0.0;
   for (const DriftPoint& p : in) {
     stt += (p.t_s - t_mean) * (p.t_s - t_mean);
@@ -116,7 +120,7 @@ DriftJudgement judge(std::span<const DriftPoint> points, double field_centre_t, 
         100.0 * ramp, j.excess_k, 100.0 * j.effect_rel, 100.0 * lphi_rel_err);
   } else {
     j.usable = true;
-    if (ramp >= 0.005 || j.excess_k > 0.0)
+    if (ramp >= kStatedDrift || j.excess_k >= kStatedDrift * j.temperature_k)
       j.sentence = fmt::format(
           "the temperature drifted by {:.1f} % over the points that determine L_phi; L_phi is "
           "used at their mean temperature {:.4g} K (the drift moves it by about {:.2g} %, within "

@@ -59,8 +59,8 @@ struct DriftJudgement {
   std::size_t n_points = 0;      // points inside the window
   bool usable = false;
   std::string reason;            // "", "temperature-drift" or "temperature-ramp"
-  std::string sentence;          // the judgement with its numbers (also when usable
-                                 // and the drift is not negligible)
+  std::string sentence;          // the judgement with its numbers; when usable, only
+                                 // for a drift or excess of at least 0.5 % of T_eff
 };
 
 // points: the sweep's points in time order; field_centre_t: the field

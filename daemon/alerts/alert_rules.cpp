@@ -144,7 +144,7 @@ void judge_sweep(const AlertConfig& c, const SweepFact& f, const ObservationSink
   unstable.judgement = f.temperature_unstable ? Judgement::bad : Judgement::good;
   unstable.message = fmt::format(
       "sample {}: the temperature changed during sweep {} (spread {:.3g} K around {:.4g} K); "
-      "it is kept out of L_phi(T)",
+      "its fit enters L_phi(T) only if the change moves L_phi by less than its error",
       f.sample, f.sweep_index, f.temperature_spread_k, f.temperature_k);
   evaluate("temperature-unstable", f.sample, settings(c.temperature_unstable), std::move(unstable),
            f.t, false);

@@ -11,6 +11,7 @@
 #include "analysis/conductance.hpp"
 #include "analysis/sweep_residuals.hpp"
 #include "analysis/verdict.hpp"
+#include "daemon/live/fit_admission.hpp"
 #include "schema/result_json.hpp"
 
 namespace lphi::live {
@@ -364,10 +365,6 @@ void SamplePipeline::fit_and_record(std::vector<const segment::Sweep*> sweeps, P
     ++fits_reused_;
   } else {
     rec = fit_points(sweeps, last);
-    if (unstable) {
-      rec.used_in_dephasing = false;
-      rec.quality.emplace_back("temperature-unstable");
-    }
   }
   // What the segmentation says about the sweeps is recomputed, never stored.
   rec.sweep_index = last.index;
@@ -379,12 +376,21 @@ void SamplePipeline::fit_and_record(std::vector<const segment::Sweep*> sweeps, P
   rec.cooldown = last.cooldown;
   rec.temperature_unstable = unstable;
   rec.t_s = last.t_end_s;
+  // The temperature the fit is reported at and, for a fresh fit, whether its
+  // drift and its plateau let it into L_phi(T) (fit_admission.hpp).
+  const auto fitted_p = fitted_p_.find(rec.cooldown);
+  const double exponent_s = drift_exponent(
+      model_dimension(settings_.model),
+      fitted_p != fitted_p_.end() ? std::optional<double>(fitted_p->second) : std::nullopt);
+  judge_temperature(rec, sweeps, exponent_s, !rec.from_store);
+  if (!rec.from_store) compare_with_plateau(rec, fits_, exponent_s);
   for (const auto* s : sweeps) sweep_cooldown_.erase(s->index);
   fits_.push_back(rec);
   out.fits.push_back(rec);
   update_zero_field(rec, out);
   if (!rec.from_store || stored_.empty()) {
     out.verdicts.push_back(assess(rec));
+    if (const auto& p = out.verdicts.back().exponent_p; p && std::isfinite(*p)) fitted_p_[rec.cooldown] = *p;
   }
 }
 
@@ -435,7 +441,7 @@ VerdictRecord SamplePipeline::assess(const FitRecord& trigger) const {
     if (f.cooldown != trigger.cooldown) continue;
     ++n_fits;
     if (!f.used_in_dephasing) continue;
-    points.push_back({f.temperature_k, f.lphi_m, f.lphi_err_m});
+    points.push_back({f.temperature_k, f.lphi_m, scaled_lphi_error_m(f)});
     if (f.sigma0_s && *f.sigma0_s > 0.0) {
       sum_rsq += 1.0 / *f.sigma0_s;
       ++n_rsq;

@@ -11,10 +11,13 @@
 // and emits plain records (SweepRecord, FitRecord, VerdictRecord,
 // ZeroFieldRecord) for the caller to store and publish.
 //
-// Which fits enter L_phi(T): those whose sweep lies on one temperature plateau
-// (not temperature_unstable) and that checks::fit_quality() finds usable for
+// Which fits enter L_phi(T): those that checks::fit_quality() finds usable for
 // dephasing (fitted, converged, none of window-too-narrow, too-few-points,
-// parameter-at-limit). A fit's chi2_red is its residual variance over the
+// parameter-at-limit), whose temperature drift moves L_phi by less than its
+// error and that agree with the other sweeps of their plateau
+// (fit_admission.hpp: the temperature a fit is reported at, the drift, the
+// plateau comparison, and the errors scaled by sqrt(chi2_red) that L_phi(T)
+// weighs them with). A fit's chi2_red is its residual variance over the
 // variance of the points' noise, estimated from the sweep itself without a
 // model (conductance::point_noise_s): dimensionless, about 1 for a good fit,
 // and what the fit-chi2 alert judges (fit_sweep's own, in (e^2/(pi h))^2, is
@@ -261,6 +264,9 @@ class SamplePipeline {
   std::map<std::size_t, std::int64_t> sweep_cooldown_;
   std::size_t sweeps_seen_ = 0;
   std::size_t fits_reused_ = 0;
+  // The exponent p of the latest L_phi(T) fit per cooldown: the drift's
+  // effect on L_phi is judged with it (fit_admission.hpp).
+  std::map<std::int64_t, double> fitted_p_;
 };
 
 }  // namespace lphi::live
