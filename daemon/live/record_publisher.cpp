@@ -104,6 +104,18 @@ void RecordPublisher::publish_fits(const PipelineOutput& out, const std::map<std
       fact.lphi_err_m = f.lphi_err_m;
       fact.temperature_k = f.temperature_k;
       fact.flags = f.flags;
+      // The field axis and the advice, from the fit's result (the keys of
+      // `lphi fit --json`; a fit that could not be centred has no offset).
+      auto number = [&](const char* key) -> std::optional<double> {
+        const auto it = f.result.find(key);
+        if (it == f.result.end() || !it->is_number()) return std::nullopt;
+        return it->get<double>();
+      };
+      fact.field_offset_t = number("field_offset_t");
+      fact.lag_field_t = number("lag_field_t");
+      fact.b_phi_t = number("b_phi_t");
+      if (const auto it = f.result.find("advice"); it != f.result.end() && it->is_string())
+        fact.advice = it->get<std::string>();
       engine_->on_fit(fact);
     }
   }
