@@ -10,11 +10,14 @@
 
 #include <Eigen/Dense>
 #include <algorithm>
+#include <boost/math/distributions/fisher_f.hpp>
 #include <cmath>
 #include <limits>
 #include <span>
 #include <string>
 #include <vector>
+
+#include <fmt/format.h>
 
 #include "analysis/constants.hpp"
 #include "analysis/internal/sweep_fit_function.hpp"
@@ -48,15 +51,19 @@ constexpr double kResolvedStepFraction = 0.25;
 constexpr double kBoundFactor = 100.0;
 constexpr int kMaxWindowPasses = 8;
 constexpr double kWindowSettle = 0.05;
+constexpr double kNoSignalP = 1e-3;
+constexpr double kShrinkSigmas = 2.0;
+constexpr double kAlphaUnresolved = 0.5;
 
 Layout make_layout(const Shape& shape, bool alpha_free, double alpha_held, bool offset,
-                   bool background) {
+                   bool background, bool odd) {
   Layout l;
   int next = 1;
   if (shape.has_lso()) l.ln_lso = next++;
   if (shape.model == mc::Model::hln2d && alpha_free) l.alpha = next++;
   if (offset) l.offset = next++;
   if (background) l.background = next++;
+  if (odd) l.odd = next++;
   l.size = next;
   l.alpha_held = alpha_held;
   return l;
@@ -96,7 +103,8 @@ PassResult levenberg_marquardt(const Shape& shape, const Layout& l, const Data& 
     case 2: return tiny_solve<2>(evaluations, e, max_iterations, theta, residuals, jacobian);
     case 3: return tiny_solve<3>(evaluations, e, max_iterations, theta, residuals, jacobian);
     case 4: return tiny_solve<4>(evaluations, e, max_iterations, theta, residuals, jacobian);
-    default: break;  // make_layout never gives more than 4 parameters
+    case 5: return tiny_solve<5>(evaluations, e, max_iterations, theta, residuals, jacobian);
+    default: break;  // make_layout never gives more than 5 parameters
   }
   PassResult r;
   r.termination = "unsupported number of parameters: " + std::to_string(l.size);
@@ -251,103 +259,6 @@ struct Solution {
   Values values() const { return unpack(layout, theta.data()); }
 };
 
-// The adaptive window: LM passes, each followed by a move of the window to
-// window_factor * B_c of the parameters found, until it settles (moves by
-// less than kWindowSettle, relative, with the alpha decision unchanged) or
-// after kMaxWindowPasses passes. A window given in the options stays put.
-class WindowSearch {
- public:
-  WindowSearch(const Data& all, const Shape& shape, const SweepFitOptions& options,
-               const FieldScales& scales)
-      : all_(all), shape_(shape), options_(options), scales_(scales),
-        alpha_can_be_free_(alpha_may_be_free(options)),
-        alpha_hold_(options.alpha_fixed.value_or(options.alpha_default)) {
-    s_.window = options.window_t ? *options.window_t : scales.window_for(scales.cap);
-    s_.index = window_points(all.field_t, s_.window);
-    s_.data = select(all, s_.index);
-  }
-
-  bool enough_points() const {
-    return s_.data.size() >= static_cast<std::size_t>(layout_for(alpha_can_be_free_).size) + 1;
-  }
-  std::string too_few_points() const {
-    return "only " + std::to_string(s_.data.size()) + " points inside the field window of " +
-           std::to_string(s_.window) + " T; too few to fit";
-  }
-
-  // Start values from the grid over the whole (capped) range, alpha free if
-  // it may be; if the window then turns out too short for a free alpha, start
-  // again with it held. Then the first move of the window.
-  void start() {
-    s_.layout = layout_for(alpha_can_be_free_);
-    s_.theta = grid_start(shape_, s_.layout, s_.data, scales_.field_step, s_.window);
-    if (alpha_can_be_free_ && !alpha_free_at(s_.window, s_.values())) {
-      s_.layout = layout_for(false);
-      s_.theta = grid_start(shape_, s_.layout, s_.data, scales_.field_step, s_.window);
-    }
-    if (!options_.window_t && !settled(next_window())) move_to(next_window());
-  }
-
-  Solution solve() && {
-    for (int round = 0; round < kMaxWindowPasses; ++round) {
-      s_.pass = levenberg_marquardt(shape_, s_.layout, s_.data,
-                                    length_bounds(shape_, scales_.field_step, s_.window),
-                                    options_.max_iterations, s_.theta, s_.residuals,
-                                    s_.jacobian_columns);
-      s_.iterations += s_.pass.iterations;
-      if (options_.window_t) break;
-      const double next = next_window();
-      if (settled(next) || round + 1 == kMaxWindowPasses || !move_to(next)) break;
-    }
-    return std::move(s_);
-  }
-
- private:
-  Layout layout_for(bool alpha_free) const {
-    return make_layout(shape_, alpha_free, alpha_hold_, options_.fit_offset,
-                       options_.fit_background);
-  }
-  bool alpha_free_at(double window, const Values& v) const {
-    return alpha_can_be_free_ &&
-           window >= options_.alpha_free_min_ratio * mc::characteristic_field_t(v.lphi_m);
-  }
-  double next_window() const {
-    return scales_.window_for(options_.window_factor * characteristic_field(shape_, s_.values()));
-  }
-  bool settled(double next) const {
-    const bool alpha_same =
-        alpha_free_at(next, s_.values()) == (s_.layout.alpha >= 0) || !alpha_can_be_free_;
-    return std::abs(next - s_.window) <= kWindowSettle * s_.window && alpha_same;
-  }
-  // Moves the window to `next` (new points, alpha decided afresh, linear
-  // parameters re-solved when anything changed). Returns false when it would
-  // leave too few points to fit.
-  bool move_to(double next) {
-    std::vector<std::size_t> next_index = window_points(all_.field_t, next);
-    if (next_index.size() < static_cast<std::size_t>(layout_for(false).size) + 1) return false;
-    const bool new_points = next_index.size() != s_.index.size();
-    s_.window = next;
-    if (new_points) {
-      s_.index = std::move(next_index);
-      s_.data = select(all_, s_.index);
-    }
-    const Layout wanted = layout_for(alpha_free_at(s_.window, s_.values()));
-    if (new_points || !(wanted == s_.layout)) {
-      s_.theta = relayout(shape_, s_.layout, wanted, s_.data, s_.theta);
-      s_.layout = wanted;
-    }
-    return true;
-  }
-
-  const Data& all_;
-  const Shape& shape_;
-  const SweepFitOptions& options_;
-  const FieldScales& scales_;
-  const bool alpha_can_be_free_;
-  const double alpha_hold_;
-  Solution s_;
-};
-
 // Chi-square and the covariance from the analytic Jacobian at the solution,
 // scaled by chi2_red when the point errors are unknown.
 struct Covariance {
@@ -390,6 +301,132 @@ Covariance covariance_at(const Solution& s) {
   return c;
 }
 
+// The adaptive window: LM passes, each followed by a move of the window to
+// window_factor * B_c of the parameters found, until it settles (moves by
+// less than kWindowSettle, relative, with the alpha decision unchanged) or
+// after kMaxWindowPasses passes. A window given in the options stays put.
+class WindowSearch {
+ public:
+  WindowSearch(const Data& all, const Shape& shape, const SweepFitOptions& options,
+               const FieldScales& scales, bool hold_alpha = false)
+      : all_(all), shape_(shape), options_(options), scales_(scales),
+        alpha_can_be_free_(alpha_may_be_free(options) && !hold_alpha),
+        alpha_hold_(options.alpha_fixed.value_or(options.alpha_default)) {
+    s_.window = options.window_t ? *options.window_t : scales.window_for(scales.cap);
+    s_.index = window_points(all.field_t, s_.window);
+    s_.data = select(all, s_.index);
+  }
+
+  bool enough_points() const {
+    return s_.data.size() >= static_cast<std::size_t>(layout_for(alpha_can_be_free_).size) + 1;
+  }
+  std::string too_few_points() const {
+    return "only " + std::to_string(s_.data.size()) + " points inside the field window of " +
+           std::to_string(s_.window) + " T; too few to fit";
+  }
+
+  // Start values from the grid over the whole (capped) range, alpha free if
+  // it may be; if the window then turns out too short for a free alpha, start
+  // again with it held. Then the first move of the window.
+  void start() {
+    s_.layout = layout_for(alpha_can_be_free_);
+    s_.theta = grid_start(shape_, s_.layout, s_.data, scales_.field_step, s_.window);
+    if (alpha_can_be_free_ && !alpha_free_at(s_.window, s_.values())) {
+      s_.layout = layout_for(false);
+      s_.theta = grid_start(shape_, s_.layout, s_.data, scales_.field_step, s_.window);
+    }
+    if (!options_.window_t && !settled(next_window())) move_to(next_window());
+  }
+
+  Solution solve() && {
+    for (int round = 0; round < kMaxWindowPasses; ++round) {
+      s_.pass = levenberg_marquardt(shape_, s_.layout, s_.data,
+                                    length_bounds(shape_, scales_.field_step, s_.window),
+                                    options_.max_iterations, s_.theta, s_.residuals,
+                                    s_.jacobian_columns);
+      s_.iterations += s_.pass.iterations;
+      if (options_.window_t) break;
+      double next = next_window();
+      if (next < s_.window) next = std::min(s_.window, next * shrink_margin());
+      if (settled(next) || round + 1 == kMaxWindowPasses || !move_to(next)) break;
+    }
+    return std::move(s_);
+  }
+
+ private:
+  Layout layout_for(bool alpha_free) const {
+    return make_layout(shape_, alpha_free, alpha_hold_, options_.fit_offset,
+                       options_.fit_background, options_.fit_odd_term);
+  }
+  bool alpha_free_at(double window, const Values& v) const {
+    return alpha_can_be_free_ &&
+           window >= options_.alpha_free_min_ratio * mc::characteristic_field_t(v.lphi_m);
+  }
+  // The noise floor of the window (sweep_fit.hpp, "Field window"): a move
+  // to a smaller window goes only as far as the upper kShrinkSigmas bound of
+  // B_c allows, exp(kShrinkSigmas sd(ln B_c)) beyond B_c itself, with
+  // sd(ln B_c) = 2 sd(ln L) (1 sd(ln L) for wire1d) of the length that sets
+  // B_c, from this pass's covariance; a singular covariance keeps the window.
+  double shrink_margin() const {
+    const Covariance c = covariance_at(s_);
+    if (c.singular) return kInf;
+    const Values v = s_.values();
+    const bool so_sets = s_.layout.ln_lso >= 0 &&
+                         shape_.field_of_length(v.lso_m) > shape_.field_of_length(v.lphi_m);
+    const double sd_ln_length = c.sd(so_sets ? s_.layout.ln_lso : s_.layout.ln_lphi);
+    const double exponent = shape_.model == mc::Model::wire1d ? 1.0 : 2.0;
+    const double margin = std::exp(kShrinkSigmas * exponent * sd_ln_length);
+    return std::isfinite(margin) ? margin : kInf;
+  }
+  double next_window() const {
+    return scales_.window_for(options_.window_factor * characteristic_field(shape_, s_.values()));
+  }
+  bool settled(double next) const {
+    const bool alpha_same =
+        alpha_free_at(next, s_.values()) == (s_.layout.alpha >= 0) || !alpha_can_be_free_;
+    return std::abs(next - s_.window) <= kWindowSettle * s_.window && alpha_same;
+  }
+  // Moves the window to `next` (new points, alpha decided afresh, linear
+  // parameters re-solved when anything changed). Returns false when it would
+  // leave too few points to fit.
+  bool move_to(double next) {
+    std::vector<std::size_t> next_index = window_points(all_.field_t, next);
+    if (next_index.size() < static_cast<std::size_t>(layout_for(false).size) + 1) return false;
+    const bool new_points = next_index.size() != s_.index.size();
+    s_.window = next;
+    if (new_points) {
+      s_.index = std::move(next_index);
+      s_.data = select(all_, s_.index);
+    }
+    const Layout wanted = layout_for(alpha_free_at(s_.window, s_.values()));
+    if (new_points || !(wanted == s_.layout)) {
+      s_.theta = relayout(shape_, s_.layout, wanted, s_.data, s_.theta);
+      s_.layout = wanted;
+    }
+    return true;
+  }
+
+  const Data& all_;
+  const Shape& shape_;
+  const SweepFitOptions& options_;
+  const FieldScales& scales_;
+  const bool alpha_can_be_free_;
+  const double alpha_hold_;
+  Solution s_;
+};
+
+// alpha fitted freely but not separated from L_phi (sweep_fit.hpp): its
+// error above kAlphaUnresolved of its value, or alpha and ln L_phi
+// degenerate, or the covariance singular.
+bool alpha_unresolved(const Solution& s, const Covariance& c) {
+  const Layout& l = s.layout;
+  if (l.alpha < 0) return false;
+  if (c.singular) return true;
+  const double alpha = s.theta[static_cast<std::size_t>(l.alpha)];
+  return !(c.sd(l.alpha) <= kAlphaUnresolved * std::abs(alpha)) ||
+         std::abs(c.corr(l.alpha, l.ln_lphi)) > kDegenerateCorrelation;
+}
+
 // The fitted parameters in SI units with their errors, and the fit's summary.
 void report(SweepFitResult& result, const Solution& s, const Covariance& c,
             const FieldScales& scales) {
@@ -415,6 +452,10 @@ void report(SweepFitResult& result, const Solution& s, const Covariance& c,
   if (layout.background >= 0) {
     result.background_s_per_t2 = v.background * kWl;
     result.background_err_s_per_t2 = c.sd(layout.background) * kWl;
+  }
+  if (layout.odd >= 0) {
+    result.odd_s_per_t = v.odd * kWl;
+    result.odd_err_s_per_t = c.sd(layout.odd) * kWl;
   }
   result.chi2 = c.chi2;
   result.chi2_red = c.chi2_red;
@@ -449,6 +490,7 @@ void add_quality_flags(SweepFitResult& result, const Solution& s, const Covarian
   const double b_c = characteristic_field(shape, v);
   if (result.field_window_t < kNarrowWindowRatio * b_c) add_flag(result, Flag::window_too_narrow);
   if (alpha_may_be_free(options) && layout.alpha < 0) add_flag(result, Flag::alpha_held);
+  if (layout.odd >= 0) add_flag(result, Flag::odd_term_fitted);
   if (c.singular ||
       (layout.alpha >= 0 && std::abs(result.corr_alpha_lphi) > kDegenerateCorrelation))
     add_flag(result, Flag::alpha_lphi_degenerate);
@@ -469,6 +511,51 @@ void add_quality_flags(SweepFitResult& result, const Solution& s, const Covarian
         shape.field_of_length(std::exp(ln_length)) < kResolvedStepFraction * scales.field_step;
     if (at_bound || unresolved) add_flag(result, Flag::parameter_at_limit);
   }
+}
+
+// The F-test of the fitted model against the sweep without weak
+// localization: the same window's points fitted by the linear terms alone
+// (offset, background, odd term, as the options fit them; none is the
+// constant 0). Returns the p-value of the chi-square reduction the model's
+// extra parameters bought, or 0 (a signal) when the test cannot be formed.
+struct SignalTest {
+  double f = 0.0, p = 0.0;
+};
+
+SignalTest signal_test(const Solution& s, const Covariance& c) {
+  const Layout& l = s.layout;
+  const Data& d = s.data;
+  const int q = (l.offset >= 0 ? 1 : 0) + (l.background >= 0 ? 1 : 0) + (l.odd >= 0 ? 1 : 0);
+  Eigen::Matrix3d normal = Eigen::Matrix3d::Zero();
+  Eigen::Vector3d rhs = Eigen::Vector3d::Zero();
+  auto row = [&](std::size_t i) {
+    Eigen::Vector3d x = Eigen::Vector3d::Zero();
+    int k = 0;
+    if (l.offset >= 0) x[k++] = d.weight[i];
+    if (l.background >= 0) x[k++] = d.weight[i] * d.field_t[i] * d.field_t[i];
+    if (l.odd >= 0) x[k++] = d.weight[i] * d.field_t[i];
+    return x;
+  };
+  for (std::size_t i = 0; i < d.size(); ++i) {
+    const Eigen::Vector3d x = row(i);
+    normal += x * x.transpose();
+    rhs += x * (d.weight[i] * d.y[i]);
+  }
+  Eigen::Vector3d coef = Eigen::Vector3d::Zero();
+  if (q > 0) coef.head(q) = normal.topLeftCorner(q, q).ldlt().solve(rhs.head(q));
+  double chi2_flat = 0.0;
+  for (std::size_t i = 0; i < d.size(); ++i) {
+    const double e = d.weight[i] * d.y[i] - coef.dot(row(i));
+    chi2_flat += e * e;
+  }
+  const double extra = static_cast<double>(l.size - q);
+  const double dof = static_cast<double>(d.size()) - static_cast<double>(l.size);
+  SignalTest t;
+  if (!(extra > 0.0) || !(dof > 0.0) || !(c.chi2 > 0.0) || !std::isfinite(chi2_flat)) return t;
+  t.f = std::max(0.0, (chi2_flat - c.chi2) / extra) / (c.chi2 / dof);
+  if (!std::isfinite(t.f)) return t;
+  t.p = boost::math::cdf(boost::math::complement(boost::math::fisher_f(extra, dof), t.f));
+  return t;
 }
 
 SweepFitResult failed(SweepFitResult result, std::string message) {
@@ -497,6 +584,10 @@ std::string_view flag_name(Flag f) {
       return "too-few-points";
     case Flag::parameter_at_limit:
       return "parameter-at-limit";
+    case Flag::odd_term_fitted:
+      return "odd-term-fitted";
+    case Flag::no_signal:
+      return "no-signal";
   }
   return "unknown";
 }
@@ -523,10 +614,27 @@ SweepFitResult fit_sweep(std::span<const conductance::DeltaSigmaPoint> points,
     return failed(std::move(result), search.too_few_points());
   }
   search.start();
-  const Solution solution = std::move(search).solve();
-  const Covariance covariance = covariance_at(solution);
+  Solution solution = std::move(search).solve();
+  Covariance covariance = covariance_at(solution);
+  if (alpha_unresolved(solution, covariance)) {
+    WindowSearch held(all, shape, options, scales, /*hold_alpha=*/true);
+    held.start();
+    solution = std::move(held).solve();
+    covariance = covariance_at(solution);
+  }
   report(result, solution, covariance, scales);
   add_quality_flags(result, solution, covariance, shape, options, scales);
+  if (const SignalTest t = signal_test(solution, covariance); t.p > kNoSignalP) {
+    add_flag(result, Flag::no_signal);
+    result.lphi_m = result.lphi_err_m = std::numeric_limits<double>::quiet_NaN();
+    result.b_phi_t = std::numeric_limits<double>::quiet_NaN();
+    std::string message =
+        fmt::format("no weak-localization signal above the noise within {:.3g} T: the model "
+                    "improves on a flat sweep by F = {:.3g} (p = {:.2g} > {:.0e}), so L_phi "
+                    "is not determined",
+                    result.field_window_t, t.f, t.p, kNoSignalP);
+    return failed(std::move(result), std::move(message));
+  }
   return result;
 }
 

@@ -5,7 +5,20 @@
 // once, on the normal equations, which for 1-4 parameters are cheap and well
 // enough conditioned after Jacobi scaling) with analytic derivatives from the models' *_grad functions. Positive
 // parameters (L_phi, L_so) are fitted as their logarithms; alpha, the
-// optional offset and the optional classical background c*B^2 enter linearly.
+// optional offset, the optional classical background c*B^2 and the optional
+// odd-in-B term k*|B| enter linearly.
+//
+// Odd-in-B term. A symmetrized sweep (both field signs, averaged) has no
+// part odd in B: Hall pickup from misaligned contacts and a gain or
+// temperature drift that is linear in time (hence in B along one leg) cancel.
+// A one-sided sweep (0 to +B only) cannot be symmetrized, and those terms
+// then look like a slope k*B that the even weak-localization curve would
+// otherwise absorb into L_phi and alpha. fit_odd_term adds k*|B| (|B| = B on
+// a one-sided sweep) as one more linear parameter, solved exactly by the
+// start grid's variable projection, in the covariance like the others and
+// reported as odd_s_per_t with its error; the result carries the flag
+// odd_term_fitted so that the output says the model was extended
+// (analysis/PHYSICS.md, "The odd-in-B term of one-sided sweeps").
 // Residuals are in units of e^2/(pi h), or in units of the point errors when
 // those are given, so that they are of order one (in siemens, ~1e-5, they
 // would trip the solver's absolute gradient tolerance).
@@ -26,10 +39,28 @@
 // start-value search uses the whole capped range. The window always holds
 // the 10 lowest fields when the data have them.
 //
+// Noise floor of the window (analysis/PHYSICS.md, "Noisy sweeps and the
+// field window"). B_c from a noisy pass is uncertain, and a pass that
+// happens to find a long L_phi would pull the window inward, where fewer
+// points determine L_phi even less, down to the 10-point minimum. A move to
+// a smaller window therefore goes only to window_factor times the upper
+// 2-sigma bound of B_c, B_c exp(2 sd(ln B_c)), with sd(ln B_c) = 2 sd(ln L)
+// (1 sd(ln L) for wire1d) of the length that sets B_c, from that pass's
+// covariance; without point errors the covariance is scaled by the
+// residual scatter, so the floor rises with the points' noise (a pass whose
+// covariance is singular keeps its window). A precise fit (sd(ln L) = 1 %)
+// moves to within 4 % of where it moved before; a noisy one keeps its points.
+//
 // alpha (hln2d) is fitted freely only when the window reaches at least
 // alpha_free_min_ratio * B_phi; below that only the low-field curvature
 // alpha L_phi^4 is determined, so alpha is held (alpha_default, 1 for weak
-// localization) and the flag alpha_held is set.
+// localization) and the flag alpha_held is set. alpha is also held, and the
+// whole window search repeated with it held, when a free alpha comes out
+// unresolved: its error above 0.5 of its value (alpha not determined to a
+// factor of 2), |corr(alpha, ln L_phi)| above 0.995 (alpha_lphi_degenerate
+// below), or a singular covariance. Noisy sweeps are the usual case: the
+// alpha-L_phi degeneracy turns the noise into a wandering L_phi, while the
+// held alpha (the physical value) leaves L_phi determined.
 //
 // Start values come from the data: a grid over ln L_phi (and ln L_so) whose
 // characteristic fields run, by factors of 2, from half the mean field step to
@@ -57,7 +88,8 @@
 // Quality flags and their thresholds:
 //   window_too_narrow       window < 2 B_c: the sweep does not reach well
 //                           past B_c, the length is not determined.
-//   alpha_held              alpha held at alpha_default (see above).
+//   alpha_held              alpha held at alpha_default (see above: a short
+//                           window, or a free alpha left unresolved).
 //   alpha_lphi_degenerate   alpha free and |corr(alpha, ln L_phi)| > 0.995, or
 //                           J^T J singular at the solution. The HLN form
 //                           correlates the two strongly even in good sweeps
@@ -72,6 +104,19 @@
 //                           L_phi > 2 t (slack because the crossover is gradual).
 //   too_few_points          fewer than max(10, 3 p) points in the window,
 //                           p the number of fitted parameters.
+//   no_signal               the fitted model does not improve on the linear terms
+//                           alone (offset, background, odd term: a flat sweep)
+//                           beyond the noise: F-test of the chi-square reduction
+//                           bought by the model's other parameters, p > 1e-3
+//                           (F(p_model - p_linear, n - p_model), both chi-squares
+//                           over the window's points; analysis/PHYSICS.md,
+//                           "Flat sweeps"). A warm sample, an open contact or a
+//                           sweep far narrower than B_phi. The result then has
+//                           ok = false, an error naming F and p, lphi_m,
+//                           lphi_err_m and b_phi_t NaN (the length is not
+//                           quoted), and the other fields as fitted.
+//   odd_term_fitted         the fit carried k*|B| (fit_odd_term): the sweep was
+//                           not symmetrized and its odd part was fitted.
 //   parameter_at_limit      a length's B_c fell below a quarter of the mean
 //                           field step (the curve is then in its logarithmic
 //                           regime everywhere, the length trades against the
@@ -108,6 +153,7 @@ struct SweepFitOptions {
   double alpha_default = 1.0;         // used when alpha cannot be fitted freely
   bool fit_offset = true;             // constant offset in Delta sigma
   bool fit_background = false;        // classical c*B^2 term
+  bool fit_odd_term = false;          // linear k*|B| term (one-sided sweeps; see above)
   bool wire_spin_orbit = false;       // wire1d: also fit L_so
   std::optional<double> window_t;     // override the automatic field window
   double window_factor = 20.0;        // window = window_factor * B_c
@@ -125,6 +171,8 @@ enum class Flag {
   dimensionality_mismatch, // fitted L_phi inconsistent with the model's geometry
   too_few_points,          // fewer points in the window than needed
   parameter_at_limit,      // a length ran to the edge of what the data resolve
+  odd_term_fitted,         // the model carried the odd-in-B term k*|B|
+  no_signal,               // no weak-localization signal above the noise (ok false)
 };
 std::string_view flag_name(Flag f);  // "window-too-narrow", ...
 
@@ -137,6 +185,7 @@ struct SweepFitResult {
   std::optional<double> lso_m, lso_err_m;    // hln2d_so, wire1d with SO
   double offset_s = 0.0, offset_err_s = 0.0; // fitted offset (siemens)
   std::optional<double> background_s_per_t2, background_err_s_per_t2;
+  std::optional<double> odd_s_per_t, odd_err_s_per_t;  // k of k*|B| when fitted
   double corr_alpha_lphi = 0.0;              // correlation(alpha, ln L_phi)
   double corr_lso_lphi = 0.0;
   double chi2 = 0.0, chi2_red = 0.0;         // sum of squared residuals (see top)

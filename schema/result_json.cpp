@@ -37,6 +37,8 @@ nlohmann::json sweep_fit_json(const fit::SweepFitResult& r, const conductance::P
   j["offset_err_s"] = finite_json(r.offset_err_s);
   j["background_s_per_t2"] = optional_json(r.background_s_per_t2);
   j["background_err_s_per_t2"] = optional_json(r.background_err_s_per_t2);
+  j["odd_s_per_t"] = optional_json(r.odd_s_per_t);
+  j["odd_err_s_per_t"] = optional_json(r.odd_err_s_per_t);
   j["corr_alpha_lphi"] = r.alpha ? finite_json(r.corr_alpha_lphi) : nlohmann::json(nullptr);
   j["corr_lso_lphi"] = r.lso_m ? finite_json(r.corr_lso_lphi) : nlohmann::json(nullptr);
   j["sigma0_s"] = finite_json(prepared.sigma0_s);

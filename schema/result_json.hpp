@@ -20,7 +20,8 @@ nlohmann::json optional_json(const std::optional<double>& value);
 // model, lphi_m, lphi_err_m, alpha, alpha_err, lso_m, lso_err_m, chi2,
 // chi2_red, n_points, field_window_t, b_phi_t, converged, termination,
 // iterations, flags, offset_s, offset_err_s, background_s_per_t2,
-// background_err_s_per_t2, corr_alpha_lphi, corr_lso_lphi, sigma0_s,
+// background_err_s_per_t2, odd_s_per_t, odd_err_s_per_t, corr_alpha_lphi,
+// corr_lso_lphi, sigma0_s,
 // sigma0_err_s, rsq0_ohm, max_field_t.
 nlohmann::json sweep_fit_json(const fit::SweepFitResult& result,
                               const conductance::PreparedSweep& prepared);

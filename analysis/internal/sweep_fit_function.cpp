@@ -31,16 +31,19 @@ void evaluate_hln(const Layout& l, const Data& d, const double* theta, double* r
   double* const j_alpha = l.alpha >= 0 ? column(l.alpha) : nullptr;
   double* const j_offset = l.offset >= 0 ? column(l.offset) : nullptr;
   double* const j_background = l.background >= 0 ? column(l.background) : nullptr;
+  double* const j_odd = l.odd >= 0 ? column(l.odd) : nullptr;
   const double* const field = d.field_t.data();
   for (std::size_t i = 0; i < n; ++i) {
     const special::BracketAndSlope s = brackets[i];
     const double w = d.weight[i];
     const double b2 = field[i] * field[i];
-    residuals[i] = w * (v.alpha * s.value + v.offset + v.background * b2 - d.y[i]);
+    residuals[i] =
+        w * (v.alpha * s.value + v.offset + v.background * b2 + v.odd * field[i] - d.y[i]);
     j_lphi[i] = -2.0 * w * v.alpha * s.log_slope;
     if (j_alpha != nullptr) j_alpha[i] = w * s.value;
     if (j_offset != nullptr) j_offset[i] = w;
     if (j_background != nullptr) j_background[i] = w * b2;
+    if (j_odd != nullptr) j_odd[i] = w * field[i];
   }
 }
 
@@ -60,16 +63,18 @@ void evaluate(const Shape& shape, const Layout& l, const Data& d, const double* 
   double* const j_alpha = l.alpha >= 0 ? column(l.alpha) : nullptr;
   double* const j_offset = l.offset >= 0 ? column(l.offset) : nullptr;
   double* const j_background = l.background >= 0 ? column(l.background) : nullptr;
+  double* const j_odd = l.odd >= 0 ? column(l.odd) : nullptr;
   for (std::size_t i = 0; i < n; ++i) {
     const double b = d.field_t[i];
     const double w = d.weight[i];
     const mc::ModelGradient g = shape.gradient(b, v.lphi_m, v.lso_m, v.alpha);
-    residuals[i] = w * (g.value + v.offset + v.background * b * b - d.y[i]);
+    residuals[i] = w * (g.value + v.offset + v.background * b * b + v.odd * b - d.y[i]);
     j_lphi[i] = w * g.d_ln_lphi;
     if (j_lso != nullptr) j_lso[i] = w * g.d_ln_lso;
     if (j_alpha != nullptr) j_alpha[i] = w * g.d_alpha;
     if (j_offset != nullptr) j_offset[i] = w;
     if (j_background != nullptr) j_background[i] = w * b * b;
+    if (j_odd != nullptr) j_odd[i] = w * b;
   }
 }
 

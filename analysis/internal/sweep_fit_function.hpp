@@ -5,7 +5,7 @@
 // asks for. Internal to the fit; nothing outside analysis/ (and its tests)
 // includes it.
 //
-// The solves for 1, 2, 3 and 4 parameters are instantiated in a translation
+// The solves for 1 to 5 parameters are instantiated in a translation
 // unit each (analysis/sweep_fit_lm.cpp.in, one per count) so that they
 // compile in parallel; sweep_fit.cpp calls them through the declarations
 // below.
@@ -92,6 +92,7 @@ struct Layout {
   int alpha = -1;
   int offset = -1;
   int background = -1;
+  int odd = -1;  // k |B|, the odd-in-B term (SweepFitOptions::fit_odd_term)
   int size = 1;
   double alpha_held = 1.0;  // used when alpha is not a parameter (hln2d)
 
@@ -127,7 +128,7 @@ struct Data {
 
 // Every parameter in natural form, whether fitted or not.
 struct Values {
-  double lphi_m = 0, lso_m = 0, alpha = 1, offset = 0, background = 0;
+  double lphi_m = 0, lso_m = 0, alpha = 1, offset = 0, background = 0, odd = 0;
 };
 
 inline Values unpack(const Layout& l, const double* theta) {
@@ -137,6 +138,7 @@ inline Values unpack(const Layout& l, const double* theta) {
   v.alpha = l.alpha >= 0 ? theta[l.alpha] : l.alpha_held;
   if (l.offset >= 0) v.offset = theta[l.offset];
   if (l.background >= 0) v.background = theta[l.background];
+  if (l.odd >= 0) v.odd = theta[l.odd];
   return v;
 }
 
@@ -225,6 +227,8 @@ extern template PassResult tiny_solve<2>(Evaluations&, bool, int, std::vector<do
 extern template PassResult tiny_solve<3>(Evaluations&, bool, int, std::vector<double>&,
                                          std::vector<double>&, std::vector<double>&);
 extern template PassResult tiny_solve<4>(Evaluations&, bool, int, std::vector<double>&,
+                                         std::vector<double>&, std::vector<double>&);
+extern template PassResult tiny_solve<5>(Evaluations&, bool, int, std::vector<double>&,
                                          std::vector<double>&, std::vector<double>&);
 
 }  // namespace lphi::fit::detail

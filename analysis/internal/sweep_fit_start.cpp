@@ -19,13 +19,14 @@ constexpr std::size_t kGridSubsample = 64;
 // free, offset, background) with the lengths held, over the points `index`.
 struct LinearSolution {
   double ssr = kInf;
-  double alpha = 1, offset = 0, background = 0;
+  double alpha = 1, offset = 0, background = 0, odd = 0;
 };
 
 LinearSolution solve_linear(const Shape& shape, const Layout& l, const Data& d,
                             const std::vector<std::size_t>& index, double lphi_m, double lso_m) {
   const bool alpha_free = l.alpha >= 0;
-  const int n_lin = (alpha_free ? 1 : 0) + (l.offset >= 0 ? 1 : 0) + (l.background >= 0 ? 1 : 0);
+  const int n_lin = (alpha_free ? 1 : 0) + (l.offset >= 0 ? 1 : 0) + (l.background >= 0 ? 1 : 0) +
+                    (l.odd >= 0 ? 1 : 0);
   const double alpha = alpha_free ? 1.0 : l.alpha_held;
   std::vector<double> basis(index.size());
   if (shape.model == mc::Model::hln2d) {
@@ -50,18 +51,19 @@ LinearSolution solve_linear(const Shape& shape, const Layout& l, const Data& d,
     if (alpha_free) x[c++] = basis[k];
     if (l.offset >= 0) x[c++] = 1.0;
     if (l.background >= 0) x[c++] = b * b;
+    if (l.odd >= 0) x[c++] = b;
   };
   auto target = [&](std::size_t k) { return d.y[index[k]] - (alpha_free ? 0.0 : basis[k]); };
-  Eigen::Matrix3d normal = Eigen::Matrix3d::Zero();
-  Eigen::Vector3d rhs = Eigen::Vector3d::Zero();
+  Eigen::Matrix4d normal = Eigen::Matrix4d::Zero();
+  Eigen::Vector4d rhs = Eigen::Vector4d::Zero();
   for (std::size_t k = 0; k < index.size(); ++k) {
-    Eigen::Vector3d x = Eigen::Vector3d::Zero();
+    Eigen::Vector4d x = Eigen::Vector4d::Zero();
     columns(k, x.data());
     const double w2 = d.weight[index[k]] * d.weight[index[k]];
     rhs += (w2 * target(k)) * x;
     normal += (w2 * x) * x.transpose();
   }
-  Eigen::Vector3d coef = Eigen::Vector3d::Zero();
+  Eigen::Vector4d coef = Eigen::Vector4d::Zero();
   if (n_lin > 0) {
     const auto block = normal.topLeftCorner(n_lin, n_lin);
     Eigen::VectorXd solved = block.ldlt().solve(rhs.head(n_lin));
@@ -73,9 +75,10 @@ LinearSolution solve_linear(const Shape& shape, const Layout& l, const Data& d,
   s.alpha = alpha_free ? coef[c++] : l.alpha_held;
   if (l.offset >= 0) s.offset = coef[c++];
   if (l.background >= 0) s.background = coef[c++];
+  if (l.odd >= 0) s.odd = coef[c++];
   s.ssr = 0.0;
   for (std::size_t k = 0; k < index.size(); ++k) {
-    Eigen::Vector3d x = Eigen::Vector3d::Zero();
+    Eigen::Vector4d x = Eigen::Vector4d::Zero();
     columns(k, x.data());
     const double e = d.weight[index[k]] * (target(k) - coef.dot(x));
     s.ssr += e * e;
@@ -88,6 +91,7 @@ void store_linear(const Layout& l, const LinearSolution& s, double* theta) {
   if (l.alpha >= 0) theta[l.alpha] = s.alpha;
   if (l.offset >= 0) theta[l.offset] = s.offset;
   if (l.background >= 0) theta[l.background] = s.background;
+  if (l.odd >= 0) theta[l.odd] = s.odd;
 }
 
 // At most m indices spread evenly over 0 .. n-1 (all of them when n <= m).
