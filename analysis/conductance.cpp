@@ -8,6 +8,8 @@
 
 #include <fmt/format.h>
 
+#include "analysis/internal/cubic_interpolation.hpp"
+
 namespace lphi::conductance {
 namespace {
 
@@ -23,41 +25,12 @@ struct SymmetrizedPoint {
 
 std::string format_field(double field_t) { return fmt::format("{:.6g} T", field_t); }
 
-// Cubic (four-point Lagrange) interpolation of the sorted curve (field,
-// value) at `field_t`, which must lie inside [front, back]: through the two
-// readings on each side, the stencil moved inward at the ends of the curve
-// (linear when the curve has only two readings). Readings taken twice at the
-// same field are averaged by the caller before this is used.
-//
-// Linear interpolation errs by about h^2 f''/8 at a step h; near the
-// weak-localization cusp, with field steps of half B_phi or more (a sweep
-// sampled every few hundred microtesla at 100 mK), that is several times the
-// lock-in's noise and the symmetrized points no longer follow the model.
-// The cubic errs by about 3 h^4 f''''/128, more than ten times less there;
-// it is exact for polynomials up to B^3, and its weights at mid-step,
-// (-1, 9, 9, -1)/16, raise the noise of an interpolated value only from
-// 0.5 to 0.64 of a reading's variance.
-double interpolate(const std::vector<FieldPoint>& sorted, double field_t) {
-  auto hi = std::lower_bound(sorted.begin(), sorted.end(), field_t,
-                             [](const FieldPoint& p, double b) { return p.field_t < b; });
-  if (hi == sorted.end()) return sorted.back().value;
-  if (hi->field_t == field_t || hi == sorted.begin()) return hi->value;
-  const std::size_t n = sorted.size();
-  const auto upper = static_cast<std::size_t>(hi - sorted.begin());  // sorted[upper - 1] < field_t < sorted[upper]
-  if (n < 4) {
-    const FieldPoint& lo = sorted[upper - 1];
-    const double t = (field_t - lo.field_t) / (hi->field_t - lo.field_t);
-    return lo.value + t * (hi->value - lo.value);
-  }
-  const std::size_t first = std::min(upper >= 2 ? upper - 2 : std::size_t{0}, n - 4);
-  double value = 0.0;
-  for (std::size_t j = first; j < first + 4; ++j) {
-    double weight = 1.0;
-    for (std::size_t k = first; k < first + 4; ++k)
-      if (k != j) weight *= (field_t - sorted[k].field_t) / (sorted[j].field_t - sorted[k].field_t);
-    value += weight * sorted[j].value;
-  }
-  return value;
+// Cubic interpolation of the sorted curve (analysis/internal/cubic_interpolation.hpp)
+// at field_t, which must lie inside [front, back]. Readings taken twice at
+// the same field are averaged by the caller before this is used.
+double interpolate(const std::vector<double>& field, const std::vector<double>& value,
+                   double field_t) {
+  return detail::apply_stencil(detail::cubic_stencil(field, field_t), value);
 }
 
 // sigma(0) from a robust weighted least-squares fit of a + c B^2 to the
@@ -181,7 +154,13 @@ double sheet_conductance_xx_s(double rho_xx_ohm, double rho_xy_ohm) {
 }
 
 PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, PreparedSweep& out) {
+  return prepare_sweep(sheet_resistance, PrepareOptions{}, out);
+}
+
+PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance,
+                            const PrepareOptions& options, PreparedSweep& out) {
   out = PreparedSweep{};
+  out.field_offset_t = options.field_offset_t;
   out.n_input = sheet_resistance.size();
   auto fail = [](std::string message) { return PrepareStatus{false, std::move(message)}; };
 
@@ -198,8 +177,11 @@ PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, Prepar
                   ") has a sheet resistance <= 0 ohm");
   }
 
+  if (!std::isfinite(options.field_offset_t))
+    return fail("the field offset is not finite");
   // Sort by field and average readings repeated at the same field.
   std::vector<FieldPoint> sorted(sheet_resistance.begin(), sheet_resistance.end());
+  for (FieldPoint& p : sorted) p.field_t -= options.field_offset_t;
   std::stable_sort(sorted.begin(), sorted.end(),
                    [](const FieldPoint& a, const FieldPoint& b) { return a.field_t < b.field_t; });
   std::vector<FieldPoint> curve;
@@ -219,11 +201,28 @@ PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, Prepar
     if (p.field_t < 0) ++n_negative;
     if (p.field_t > 0) ++n_positive;
   }
-  if (n_negative == 0 || n_positive == 0)
+  constexpr std::size_t kMinPerSide = 8;
+  std::vector<SymmetrizedPoint> symmetric;
+  const bool one_sided = options.allow_one_sided &&
+                         (n_negative < kMinPerSide || n_positive < kMinPerSide);
+  if (one_sided) {
+    // No mirror: the side with more points, at |B|, as measured.
+    const bool positive = n_positive >= n_negative;
+    if (std::max(n_negative, n_positive) < kMinPerSide)
+      return fail("too few points for a one-sided sweep: " +
+                  std::to_string(std::max(n_negative, n_positive)) + " on its side (at least " +
+                  std::to_string(kMinPerSide) + " needed)");
+    for (std::size_t i = 0; i < curve.size(); ++i) {
+      const FieldPoint& p = curve[i];
+      if (p.field_t == 0.0 || (p.field_t > 0) == positive)
+        symmetric.push_back({std::abs(p.field_t), p.value, repeats[i]});
+    }
+    out.symmetrized = false;
+  }
+  if (!one_sided && (n_negative == 0 || n_positive == 0))
     return fail(std::string("the sweep does not cross zero field (all fields are ") +
                 (n_positive == 0 ? "<= 0" : ">= 0") + "); symmetrizing needs both signs of B");
-  constexpr std::size_t kMinPerSide = 8;
-  if (n_negative < kMinPerSide || n_positive < kMinPerSide)
+  if (!one_sided && (n_negative < kMinPerSide || n_positive < kMinPerSide))
     return fail("too few points to symmetrize: " + std::to_string(n_negative) + " at B < 0 and " +
                 std::to_string(n_positive) + " at B > 0 (at least " + std::to_string(kMinPerSide) +
                 " needed on each side)");
@@ -236,8 +235,12 @@ PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, Prepar
   const bool use_positive = n_positive >= n_negative;
   const double low = curve.front().field_t;
   const double high = curve.back().field_t;
-  std::vector<SymmetrizedPoint> symmetric;
+  std::vector<double> curve_field(curve.size()), curve_value(curve.size());
   for (std::size_t i = 0; i < curve.size(); ++i) {
+    curve_field[i] = curve[i].field_t;
+    curve_value[i] = curve[i].value;
+  }
+  for (std::size_t i = 0; !one_sided && i < curve.size(); ++i) {
     const FieldPoint& p = curve[i];
     if (p.field_t == 0.0) {
       symmetric.push_back({0.0, p.value, repeats[i]});
@@ -246,7 +249,7 @@ PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance, Prepar
     if ((p.field_t > 0) != use_positive) continue;
     const double mirror = -p.field_t;
     if (mirror < low || mirror > high) continue;
-    const double opposite = interpolate(curve, mirror);
+    const double opposite = interpolate(curve_field, curve_value, mirror);
     symmetric.push_back({std::abs(p.field_t), 0.5 * (p.value + opposite), repeats[i] + 1.0});
   }
   std::sort(
@@ -344,6 +347,92 @@ std::vector<double> point_noise_profile_s(std::span<const DeltaSigmaPoint> point
     profile[i] = robust_scale(window);
   }
   return profile;
+}
+
+
+namespace {
+
+// The residual of leg[i] from the least-squares quadratic in B through up to
+// three neighbours on each side (skipping index `skip`), divided by its
+// standard deviation for unit noise. NaN when there are fewer than two
+// neighbours on a side or the neighbours' fields do not determine a quadratic.
+double spike_residual(std::span<const FieldPoint> leg, std::size_t i, std::size_t skip) {
+  std::vector<std::size_t> near;
+  std::size_t below = 0, above = 0;
+  for (std::size_t j = i, taken = 0; j > 0 && taken < 3;) {
+    --j;
+    if (j == skip) continue;
+    near.push_back(j);
+    ++taken;
+    ++below;
+  }
+  for (std::size_t j = i + 1, taken = 0; j < leg.size() && taken < 3; ++j) {
+    if (j == skip) continue;
+    near.push_back(j);
+    ++taken;
+    ++above;
+  }
+  if (below < 2 || above < 2) return kNaN;
+  double scale = 0.0;
+  for (std::size_t j : near) scale = std::max(scale, std::abs(leg[j].field_t - leg[i].field_t));
+  if (!(scale > 0.0)) return kNaN;
+  double m[3][3] = {}, v[3] = {};
+  for (std::size_t j : near) {
+    const double u = (leg[j].field_t - leg[i].field_t) / scale;
+    const double p[3] = {1.0, u, u * u};
+    for (int r = 0; r < 3; ++r) {
+      for (int q = 0; q < 3; ++q) m[r][q] += p[r] * p[q];
+      v[r] += p[r] * leg[j].value;
+    }
+  }
+  const double det = m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1]) -
+                     m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0]) +
+                     m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0]);
+  if (!(std::abs(det) > 1e-12)) return kNaN;
+  // The first row of the inverse gives the value at u = 0 and its variance.
+  const double i00 = (m[1][1] * m[2][2] - m[1][2] * m[2][1]) / det;
+  const double i01 = -(m[0][1] * m[2][2] - m[0][2] * m[2][1]) / det;
+  const double i02 = (m[0][1] * m[1][2] - m[0][2] * m[1][1]) / det;
+  const double predicted = i00 * v[0] + i01 * v[1] + i02 * v[2];
+  return (leg[i].value - predicted) / std::sqrt(1.0 + i00);
+}
+
+}  // namespace
+
+SpikeRejection reject_spikes(std::span<const FieldPoint> leg, double threshold) {
+  SpikeRejection out;
+  const std::size_t none = leg.size();
+  std::vector<double> residual(leg.size(), kNaN);
+  std::vector<double> magnitudes, values;
+  for (std::size_t i = 0; i < leg.size(); ++i) {
+    residual[i] = spike_residual(leg, i, none);
+    if (std::isfinite(residual[i])) magnitudes.push_back(std::abs(residual[i]));
+    if (std::isfinite(leg[i].value)) values.push_back(std::abs(leg[i].value));
+  }
+  if (magnitudes.size() < 5) {
+    out.kept.assign(leg.begin(), leg.end());
+    return out;
+  }
+  const double floor = 1e-9 * robust_scale(values) / 1.4826;
+  out.noise_scale = std::max(robust_scale(magnitudes), floor);
+  const double limit = threshold * out.noise_scale;
+  for (std::size_t i = 0; i < leg.size(); ++i) {
+    const double e = residual[i];
+    bool spike = std::isfinite(e) && std::abs(e) > limit;
+    if (spike) {
+      // Its neighbours, refitted without it, must not follow it.
+      for (std::size_t j : {i - 1, i + 1}) {
+        if (i == 0 || j >= leg.size()) continue;
+        const double ej = spike_residual(leg, j, i);
+        if (std::isfinite(ej) && std::abs(ej) >= std::abs(e) / 3.0) spike = false;
+      }
+    }
+    if (spike)
+      out.dropped.push_back(i);
+    else
+      out.kept.push_back(leg[i]);
+  }
+  return out;
 }
 
 }  // namespace lphi::conductance

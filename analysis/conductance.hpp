@@ -45,6 +45,21 @@ struct PreparedSweep {
   double rsq0_ohm = 0.0;                // 1/sigma0_s
   double max_field_t = 0.0;             // largest |B| kept after symmetrizing
   std::size_t n_input = 0;
+  // false: a one-sided sweep, not mirrored (PrepareOptions::allow_one_sided);
+  // Delta sigma then still holds any odd-in-B part, which the fit must carry.
+  bool symmetrized = true;
+  double field_offset_t = 0.0;          // the offset the fields were shifted by
+};
+
+struct PrepareOptions {
+  // The field reading at which the sample sees zero field
+  // (analysis/field_axis.hpp's sign convention): every field is shifted to
+  // B_reading - field_offset_t before symmetrizing.
+  double field_offset_t = 0.0;
+  // A sweep with fewer than 8 points on one side of zero field (from 0 to +B,
+  // a unipolar magnet) is prepared from the side it has, without mirroring,
+  // instead of being refused.
+  bool allow_one_sided = false;
 };
 
 struct PrepareStatus {
@@ -75,6 +90,33 @@ struct PrepareStatus {
 // signs of B, or has fewer than 8 points on either side.
 PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance_ohm,
                             PreparedSweep& out);
+// The same with the fields shifted by options.field_offset_t first, and a
+// one-sided sweep prepared from its one side when options.allow_one_sided
+// (symmetrized = false; points at |B| of that side; sigma(0) from the same
+// robust fit of its innermost points; needs at least 8 points on that side).
+PrepareStatus prepare_sweep(std::span<const FieldPoint> sheet_resistance_ohm,
+                            const PrepareOptions& options, PreparedSweep& out);
+
+// Isolated spikes in one leg (readings in time order, the field monotonic),
+// found before symmetrizing so that one wild reading moves neither the
+// centre nor its mirror image. A detrended Hampel identifier (F. R. Hampel,
+// J. Am. Stat. Assoc. 69, 383 (1974); analysis/PHYSICS.md, "The field axis"):
+// each reading with three neighbours on each side (two at the ends of the
+// leg) is compared with the least-squares quadratic in B through those
+// neighbours; the residual, divided by its standard deviation for unit noise
+// (sqrt(1 + the quadratic's prediction variance)), is judged against
+// threshold times the leg's robust scale, 1.4826 * median |residual|
+// (floored at 1e-9 of the median reading, so that round-off in noise-free
+// data is not a spike). A reading above it is a spike only if the readings
+// beside it, refitted without it, are not also off by a third of its
+// residual: a curved stretch of the curve (the weak-localization cusp
+// sampled coarsely) moves its neighbours too, a spike does not.
+struct SpikeRejection {
+  std::vector<FieldPoint> kept;        // in the leg's order
+  std::vector<std::size_t> dropped;    // indices into the leg
+  double noise_scale = 0.0;            // the robust scale used (the readings' unit)
+};
+SpikeRejection reject_spikes(std::span<const FieldPoint> leg, double threshold = 6.0);
 
 // The standard deviation of the noise on the points of a prepared sweep,
 // estimated without any model of the curve: the difference-based estimator
