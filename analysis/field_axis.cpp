@@ -443,7 +443,7 @@ Coverage coverage_before(std::span<const std::vector<double>> legs, const Covera
   if (c.n_near_zero < o.min_near_zero) {
     c.ok = false;
     c.reason = "too-few-near-zero";
-    c.sentence = fmt::format("only {} readings lie within +-{} of zero field (at least {} needed)",
+    c.sentence = fmt::format("too few readings near zero field: {} within +-{} (at least {} needed)",
                              c.n_near_zero, mt(near), o.min_near_zero);
     c.advice = fmt::format("take at least {} readings within +-{} of zero field", o.min_near_zero,
                            mt(near));

@@ -60,7 +60,9 @@ struct Options {
   field_axis::CoverageOptions coverage;
   bool reject_spikes = true;
   double spike_threshold = 6.0;  // robust standard deviations
-  bool allow_one_sided = true;
+  // One-sided sweeps (from 0 to +B) prepared from their side; off until the
+  // fit carries an odd-in-B term (then they are fitted and marked one-sided).
+  bool allow_one_sided = false;
   // chi2_red against the sweep's noise above this keeps the sweep out of
   // L_phi(T); between 1 and this the length's error is scaled by
   // error_scale. 10 lets a slightly distorted sweep count with a threefold

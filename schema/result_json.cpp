@@ -48,6 +48,61 @@ nlohmann::json sweep_fit_json(const fit::SweepFitResult& r, const conductance::P
   return j;
 }
 
+nlohmann::json sweep_analysis_json(const sweep::Analysis& a) {
+  nlohmann::json j = sweep_fit_json(a.fit, a.prepared);
+  if (!a.fit.ok) {
+    for (const char* key : {"lphi_m", "lphi_err_m", "chi2", "b_phi_t", "field_window_t"})
+      j[key] = nullptr;
+  }
+  j["chi2_red"] = optional_json(a.chi2_red);
+  j["chi2_red_quantum"] = finite_json(a.chi2_red_quantum);
+  j["point_noise_s"] = finite_json(a.point_noise_s);
+  j["error_scale"] = finite_json(a.error_scale);
+  j["sigma0_s"] = finite_json(a.sigma0_s);
+  j["sigma0_err_s"] = finite_json(a.sigma0_err_s);
+  j["rsq0_ohm"] = finite_json(a.rsq0_ohm);
+  j["rsq0_err_ohm"] = finite_json(a.rsq0_err_ohm);
+  j["symmetrized"] = a.fitted ? nlohmann::json(a.prepared.symmetrized) : nlohmann::json(nullptr);
+  j["field_offset_t"] = a.offset_known ? finite_json(a.field_offset_t) : nlohmann::json(nullptr);
+  j["field_offset_err_t"] = finite_json(a.field_offset_err_t);
+  j["remanent_field_t"] = finite_json(a.remanent_field_t);
+  j["field_lag_s"] = finite_json(a.field_lag_s);
+  j["field_lag_err_s"] = finite_json(a.field_lag_err_s);
+  j["sweep_rate_t_per_s"] = finite_json(a.sweep_rate_t_per_s);
+  j["time_constant_s"] = finite_json(a.time_constant_s);
+  j["max_sweep_rate_t_per_s"] = finite_json(a.max_sweep_rate_t_per_s);
+  j["too_fast"] = a.too_fast;
+  j["offset_large"] = a.offset_large;
+  j["n_spikes"] = a.n_spikes;
+  nlohmann::json legs = nlohmann::json::array();
+  for (const sweep::LegAxis& l : a.legs) {
+    legs.push_back({{"centre_t", finite_json(l.centre.centre_t)},
+                    {"centre_err_t", finite_json(l.centre.centre_err_t)},
+                    {"rate_t_per_s", finite_json(l.centre.rate_t_per_s)},
+                    {"direction", l.centre.direction > 0 ? "up" : (l.centre.direction < 0 ? "down" : "unknown")},
+                    {"n_readings", l.n_readings},
+                    {"n_spikes", l.n_spikes},
+                    {"centred", l.centre.ok},
+                    {"reason", l.centre.reason}});
+  }
+  j["legs"] = legs;
+  j["coverage"] = {{"ok", a.coverage.ok},
+                   {"reason", a.coverage.reason},
+                   {"sentence", a.coverage.sentence},
+                   {"advice", a.coverage.advice}};
+  j["flat"] = a.flat;
+  j["units_suspect"] = a.units_suspect;
+  j["unit_hint"] = a.unit_hint;
+  j["usable"] = a.usable;
+  nlohmann::json reasons = nlohmann::json::array();
+  for (const sweep::Reason& r : a.reasons) reasons.push_back({{"name", r.name}, {"sentence", r.sentence}});
+  j["reasons"] = reasons;
+  j["advice"] = a.advice;
+  j["temperature_k"] = finite_json(a.temperature_k);
+  j["error"] = a.fit.ok ? std::string() : a.fit.error;
+  return j;
+}
+
 nlohmann::json dephasing_json(const dephasing::DephasingResult& r) {
   nlohmann::json j;
   j["state"] = std::string(dephasing::state_name(r.state));

@@ -1,6 +1,9 @@
 // lphi fit: one magnetoconductance sweep from a CSV table to L_phi.
 //
-// rows -> R_sq (conductance.hpp) -> prepare_sweep -> fit_sweep (sweep_fit.hpp)
+// rows -> R_sq (conductance.hpp) -> legs split at the field's reversals ->
+// sweep::analyze (analysis/sweep_analysis.hpp), the same analysis lphid runs
+// on a live sweep: spikes dropped, each leg centred on its cusp, coverage,
+// prepare, fit, chi2_red against the sweep's own noise, usable with reasons.
 
 #include <algorithm>
 #include <cmath>
@@ -12,6 +15,7 @@
 
 #include "analysis/conductance.hpp"
 #include "analysis/magnetoconductance.hpp"
+#include "analysis/sweep_analysis.hpp"
 #include "analysis/sweep_fit.hpp"
 #include "daemon/client/commands.hpp"
 #include "daemon/client/csv_table.hpp"
@@ -46,50 +50,87 @@ struct FitOutcome {
   std::string source;
   Signal signal = Signal::rsq;
   std::size_t rows = 0;
-  conductance::PreparedSweep prepared;
-  fit::SweepFitResult result;
+  std::vector<std::size_t> leg_rows;  // rows per leg, in file order
+  std::size_t legs_found = 0;
+  sweep::Analysis analysis;
 };
 
 // The keys lphid's fits also carry (schema/result_json.hpp), plus the
 // input file, the signal column used and the rows read.
 nlohmann::json to_json(const FitOutcome& o) {
-  nlohmann::json j = schema::sweep_fit_json(o.result, o.prepared);
+  nlohmann::json j = schema::sweep_analysis_json(o.analysis);
   j["input"] = o.source;
+  j["leg_rows"] = o.leg_rows;
   j["input_column"] = std::string(column_name(o.signal));
   j["n_rows"] = o.rows;
   return j;
 }
 
+std::string leg_description(const FitOutcome& o) {
+  std::string text;
+  std::size_t first = 1;
+  for (std::size_t l = 0; l < o.leg_rows.size(); ++l) {
+    const double direction = l < o.analysis.legs.size() ? o.analysis.legs[l].centre.direction : 0.0;
+    text += (text.empty() ? "" : ", ") +
+            std::string(direction > 0 ? "up" : (direction < 0 ? "down" : "leg")) + " rows " +
+            std::to_string(first) + "-" + std::to_string(first + o.leg_rows[l] - 1);
+    first += o.leg_rows[l];
+  }
+  if (o.legs_found > o.leg_rows.size())
+    text += " (" + std::to_string(o.legs_found - o.leg_rows.size()) + " later legs not used)";
+  return text;
+}
+
 void print_human(const FitOutcome& o, std::ostream& out) {
-  const auto& r = o.result;
+  const sweep::Analysis& a = o.analysis;
+  const auto& r = a.fit;
   out << "lphi fit: " << o.source << " (" << mc::model_name(r.model) << ", from "
       << column_name(o.signal) << ", " << o.rows << " rows)\n";
   Table t({}, 2);
-  t.add("L_phi", format_length(r.lphi_m, r.lphi_err_m));
-  if (r.alpha) t.add("alpha", format_with_error(*r.alpha, r.alpha_err, ""));
-  if (r.lso_m) t.add("L_so", format_length(*r.lso_m, r.lso_err_m));
-  t.add("B_phi", format_field_mt(r.b_phi_t));
-  t.add("window", "|B| <= " + format_field_mt(r.field_window_t) + " (data reach " +
-                      format_field_mt(o.prepared.max_field_t) + ")");
-  t.add("points", std::to_string(r.n_points) + " in the window");
-  t.add("chi2_red", format_number(r.chi2_red, 4));
-  // The solver's first sentence ("Function tolerance reached") is enough here.
-  const std::string reason = r.termination.substr(0, r.termination.find('.'));
-  t.add("converged", std::string(r.converged ? "yes" : "NO") + " (" + reason + ", " +
-                         std::to_string(r.iterations) + " iterations)");
-  // R_sq = 1/sigma, so its error is sigma_err / sigma^2.
-  const double s0 = o.prepared.sigma0_s;
-  t.add("R_sq(0)", format_with_error(o.prepared.rsq0_ohm, o.prepared.sigma0_err_s / (s0 * s0),
-                                     "ohm") +
-                       "  (sigma(0) = " + format_number(s0 * 1e3, 6) + " mS)");
-  if (r.alpha && r.alpha_err) t.add("corr(alpha, L_phi)", format_number(r.corr_alpha_lphi, 3));
-  if (r.background_s_per_t2) {
-    t.add("background", format_with_error(*r.background_s_per_t2, r.background_err_s_per_t2,
-                                          "S/T^2"));
+  t.add("legs", leg_description(o));
+  if (a.offset_known) {
+    std::string offset = format_with_error(a.field_offset_t * 1e3, a.field_offset_err_t * 1e3, "mT");
+    if (std::isfinite(a.field_lag_s))
+      offset += "  (lag between the legs " + format_with_error(a.field_lag_s, a.field_lag_err_s, "s") + ")";
+    t.add("field offset", offset + ", corrected before the fit");
+  } else {
+    t.add("field offset", "not measured");
   }
-  std::string flags;
-  for (fit::Flag f : r.flags) flags += (flags.empty() ? "" : ", ") + std::string(fit::flag_name(f));
-  t.add("flags", flags.empty() ? "none" : flags);
+  if (a.n_spikes > 0) t.add("spikes", std::to_string(a.n_spikes) + " dropped");
+  if (r.ok) {
+    t.add("L_phi", format_length(r.lphi_m, r.lphi_err_m));
+    if (r.alpha) t.add("alpha", format_with_error(*r.alpha, r.alpha_err, ""));
+    if (r.lso_m) t.add("L_so", format_length(*r.lso_m, r.lso_err_m));
+    t.add("B_phi", format_field_mt(r.b_phi_t));
+    t.add("window", "|B| <= " + format_field_mt(r.field_window_t) + " (data reach " +
+                        format_field_mt(a.prepared.max_field_t) + ")");
+    t.add("points", std::to_string(r.n_points) + " in the window" +
+                        (a.prepared.symmetrized ? "" : " (one-sided, not symmetrized)"));
+    t.add("chi2_red", a.chi2_red ? format_number(*a.chi2_red, 4) +
+                                       " (against the sweep's own noise; errors scaled by " +
+                                       format_number(a.error_scale, 3) + " for L_phi(T))"
+                                 : std::string("unknown (the sweep's noise could not be estimated)"));
+    // The solver's first sentence ("Function tolerance reached") is enough here.
+    const std::string reason = r.termination.substr(0, r.termination.find('.'));
+    t.add("converged", std::string(r.converged ? "yes" : "NO") + " (" + reason + ", " +
+                           std::to_string(r.iterations) + " iterations)");
+    t.add("R_sq(0)", format_with_error(a.rsq0_ohm, a.rsq0_err_ohm, "ohm") +
+                         "  (sigma(0) = " + format_number(a.sigma0_s * 1e3, 6) +
+                         " mS, with the fitted offset)");
+    if (r.alpha && r.alpha_err) t.add("corr(alpha, L_phi)", format_number(r.corr_alpha_lphi, 3));
+    if (r.background_s_per_t2) {
+      t.add("background", format_with_error(*r.background_s_per_t2, r.background_err_s_per_t2,
+                                            "S/T^2"));
+    }
+    std::string flags;
+    for (fit::Flag f : r.flags) flags += (flags.empty() ? "" : ", ") + std::string(fit::flag_name(f));
+    t.add("flags", flags.empty() ? "none" : flags);
+  } else {
+    t.add("L_phi", "none: " + r.error);
+  }
+  t.add("usable", std::string(a.usable ? "yes" : "no") + " for L_phi(T)");
+  for (const sweep::Reason& reason : a.reasons) t.add(reason.name, reason.sentence);
+  if (!a.advice.empty()) t.add("advice", a.advice);
   t.print(out);
 }
 
@@ -190,6 +231,8 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
     points.push_back({field_t[i], rsq});
   }
 
+  // One-sided sweeps wait for the fit's odd-in-B term (the analysis has the
+  // path, sweep::Options::allow_one_sided); until then they are refused here.
   const auto [lowest, highest] = std::minmax_element(field_t.begin(), field_t.end());
   if (!(*lowest < 0.0 && *highest > 0.0)) {
     return fail(o.source + " column 'field_t': the sweep never crosses zero field (B from " +
@@ -197,29 +240,56 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
                 " T); lphi needs both signs of B to symmetrize");
   }
 
-  if (auto s = conductance::prepare_sweep(points, o.prepared); !s.ok) {
-    return fail(o.source + ": " + s.error);
+  // Optional columns: the time of each reading and the lock-in's time constant.
+  std::vector<double> time_s, time_constant_s;
+  if (table.has_column("t_s")) {
+    if (auto s = table.numeric_column("t_s", time_s); !s.ok()) return fail(s.message());
   }
+  if (table.has_column("time_constant_s")) {
+    if (auto s = table.numeric_column("time_constant_s", time_constant_s); !s.ok())
+      return fail(s.message());
+  }
+  std::vector<sweep::Reading> readings;
+  readings.reserve(points.size());
+  for (std::size_t i = 0; i < points.size(); ++i) {
+    sweep::Reading reading;
+    reading.field_t = points[i].field_t;
+    reading.rsq_ohm = points[i].value;
+    if (!time_s.empty()) reading.t_s = time_s[i];
+    if (!time_constant_s.empty()) reading.time_constant_s = time_constant_s[i];
+    readings.push_back(reading);
+  }
+  // An up-then-down table is two legs; the analysis takes the first two.
+  std::vector<std::vector<sweep::Reading>> legs = sweep::split_at_reversals(readings);
+  o.legs_found = legs.size();
+  if (legs.size() > 2) legs.resize(2);
+  for (const auto& leg : legs) o.leg_rows.push_back(leg.size());
 
-  fit::SweepFitOptions options;
-  options.model = *model;
-  options.geometry.squares = rq.squares.value_or(0.0);
-  options.geometry.width_m = rq.width_m.value_or(0.0);
-  options.geometry.thickness_m = rq.thickness_m.value_or(0.0);
-  options.geometry.mean_free_path_m = rq.mean_free_path_m.value_or(0.0);
-  options.alpha_fixed = rq.alpha_fixed;
-  options.fit_offset = !rq.no_offset;
-  options.fit_background = rq.background;
-  options.wire_spin_orbit = rq.spin_orbit;
-  options.window_t = rq.window_t;
-  o.result = fit::fit_sweep(o.prepared.points, options);
+  sweep::Options options;
+  options.fit.model = *model;
+  options.fit.geometry.squares = rq.squares.value_or(0.0);
+  options.fit.geometry.width_m = rq.width_m.value_or(0.0);
+  options.fit.geometry.thickness_m = rq.thickness_m.value_or(0.0);
+  options.fit.geometry.mean_free_path_m = rq.mean_free_path_m.value_or(0.0);
+  options.fit.alpha_fixed = rq.alpha_fixed;
+  options.fit.fit_offset = !rq.no_offset;
+  options.fit.fit_background = rq.background;
+  options.fit.wire_spin_orbit = rq.spin_orbit;
+  options.fit.window_t = rq.window_t;
+  o.analysis = sweep::analyze(legs, options);
+  const sweep::Analysis& a = o.analysis;
+  if (!a.ok) return fail(o.source + ": " + a.error);
+  if (a.has("not-prepared")) return fail(o.source + ": " + a.fit.error);
+  if (a.has("too-few-near-zero")) return fail(o.source + ": " + a.coverage.sentence);
 
   if (rq.json) {
     out << to_json(o).dump(2) << '\n';
   } else {
     print_human(o, out);
   }
-  return exit_ok;
+  // A sweep without a fit (flat, a hole across zero field) or whose fit
+  // failed ran but gave no length: the fit's failure code.
+  return a.fit.ok ? exit_ok : exit_failure;
 }
 
 void register_fit_command(CLI::App& app, int* exit_code) {

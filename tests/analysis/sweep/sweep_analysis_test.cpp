@@ -176,7 +176,14 @@ TEST(SweepAnalysis, OneSidedSweepIsPreparedFromItsSide) {
   plan.n_points = 201;
   plan.noise_ohm = 0.1;
   const std::vector<std::vector<sw::Reading>> legs{readings(plan)};
-  const sw::Analysis a = sw::analyze(legs, sw::Options{});
+  // Off by default: refused by the preparation, with its reason.
+  const sw::Analysis refused = sw::analyze(legs, sw::Options{});
+  EXPECT_FALSE(refused.fitted);
+  EXPECT_TRUE(refused.has("not-prepared"));
+  EXPECT_FALSE(refused.usable);
+  sw::Options options;
+  options.allow_one_sided = true;
+  const sw::Analysis a = sw::analyze(legs, options);
   ASSERT_TRUE(a.ok) << a.error;
   EXPECT_TRUE(a.fitted) << a.fit.error;
   EXPECT_FALSE(a.prepared.symmetrized);
