@@ -314,6 +314,49 @@ std::string small_sweep(int n, const std::string& signal_column = "rsq_ohm") {
   return s.str();
 }
 
+// The sweep: L_phi = 1 um read through a magnet holding 0.3 mT
+// (the sample sees B_reading + 0.3 mT). Mirrored about the reading's zero it
+// fitted 887 +- 7 nm; lphi fit centres the cusp first and quotes the offset.
+TEST(LphiFit, RemanentFieldIsMeasuredAndCorrected) {
+  const Table t = read_table(lphi_ok({"synth", "sweep", "--lphi-m", "1e-6", "--max-field-t",
+                                      "0.02", "--noise-rsq-ohm", "0.2", "--seed", "4"}));
+  const std::size_t b = t.column("field_t"), r = t.column("rsq_ohm");
+  std::ostringstream csv;
+  csv << "field_t,rsq_ohm\n";
+  csv.precision(17);
+  for (const auto& row : t.rows) csv << row[b] - 0.3e-3 << ',' << row[r] << '\n';
+  const json j = lphi_json({"fit", "-", "--json"}, csv.str());
+  ASSERT_TRUE(j["remanent_field_t"].is_number()) << j.dump();
+  EXPECT_NEAR(j["remanent_field_t"].get<double>(), 0.3e-3,
+              4.0 * j["field_offset_err_t"].get<double>());
+  const double lphi = j["lphi_m"].get<double>();
+  const double err = j["lphi_err_m"].get<double>() * j["error_scale"].get<double>();
+  EXPECT_NEAR(lphi, 1e-6, std::max(3.0 * err, 0.05e-6)) << j.dump();
+  EXPECT_TRUE(j.contains("sigma0_s"));
+  EXPECT_FALSE(j.contains("sigma_zero_s"));
+  EXPECT_TRUE(j["chi2_red"].is_number());
+  EXPECT_TRUE(j["advice"].is_string());
+  const std::string out = lphi_ok({"fit", "-"}, csv.str());
+  EXPECT_THAT(out, HasSubstr("field offset"));
+  EXPECT_THAT(out, HasSubstr("against the sweep's own noise"));
+}
+
+// A sweep without weak localization (alpha = 0, only noise) is said to be
+// flat, with the fit's failure code, not fitted to an absurd length.
+TEST(LphiFit, FlatSweepIsReportedAsSuch) {
+  const std::string sweep = lphi_ok({"synth", "sweep", "--lphi-m", "1e-6", "--alpha", "0", "--max-field-t", "0.02",
+                                     "--noise-rsq-ohm", "0.5", "--seed", "2"});
+  const ProgramResult r = lphi_run({"fit", "-"}, sweep);
+  EXPECT_EQ(r.exit_code, lphi::client::exit_failure) << r.err;
+  EXPECT_THAT(r.out, HasSubstr("no weak-localization signal above the noise"));
+  const ProgramResult j = lphi_run({"fit", "-", "--json"}, sweep);
+  EXPECT_EQ(j.exit_code, lphi::client::exit_failure);
+  const json parsed = json::parse(j.out);
+  EXPECT_TRUE(parsed["lphi_m"].is_null()) << j.out;
+  EXPECT_TRUE(parsed["flat"].get<bool>());
+  EXPECT_FALSE(parsed["usable"].get<bool>());
+}
+
 TEST(LphiFitBadInput, MissingFile) {
   TempDir dir;
   const std::string path = dir.file("absent.csv");
