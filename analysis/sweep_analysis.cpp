@@ -247,11 +247,14 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
       note(a, "not-prepared", a.fit.error);
     } else {
       a.fitted = true;
-      a.fit = fit::fit_sweep(a.prepared.points, options.fit);
+      // A one-sided sweep keeps its odd part: the fit carries it (k |B|).
+      fit::SweepFitOptions fit_options = options.fit;
+      if (!a.prepared.symmetrized) fit_options.fit_odd_term = true;
+      a.fit = fit::fit_sweep(a.prepared.points, fit_options);
       a.point_noise_s = conductance::point_noise_s(a.prepared.points);
       if (a.fit.ok) {
         a.chi2_red_quantum = a.fit.chi2_red;
-        a.chi2_red = fit::chi2_red_against_noise(a.prepared.points, a.fit, options.fit);
+        a.chi2_red = fit::chi2_red_against_noise(a.prepared.points, a.fit, fit_options);
         if (a.chi2_red) a.error_scale = std::sqrt(std::max(1.0, *a.chi2_red));
       }
       a.sigma0_s = a.prepared.sigma0_s;
@@ -275,8 +278,8 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
   if (a.fitted && !a.fit.ok) note(a, "fit-failed", "the fit failed: " + a.fit.error);
   if (a.fitted && !a.prepared.symmetrized)
     note(a, "one-sided",
-         "the sweep is one-sided: not symmetrized, and the fit carries no odd-in-B term, so a "
-         "Hall part stays in Delta sigma");
+         "the sweep is one-sided: not symmetrized; the fit carries an odd-in-B term k |B| for "
+         "its Hall part");
   if (a.fit.ok) {
     if (a.chi2_red && *a.chi2_red > options.max_chi2_red)
       note(a, "fit-chi2",
@@ -347,7 +350,7 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
   // Usable for L_phi(T): a good fit whose cusp is resolved and trusted.
   static const char* const kExcluding[] = {
       "no-wl-signal",     "hole-across-zero", "too-few-near-zero", "no-readings",
-      "not-prepared",     "fit-failed",       "one-sided",         "fit-chi2",
+      "not-prepared",     "fit-failed",       "fit-chi2",
       "window-too-narrow", "not-converged",   "too-few-points",    "parameter-at-limit",
       "cusp-not-resolved", "swept-too-fast",  "field-offset-uncertain", "units-suspect"};
   a.usable = a.fit.ok && std::isfinite(a.fit.lphi_m) && a.fit.lphi_m > 0.0;

@@ -60,8 +60,10 @@ struct Options {
   field_axis::CoverageOptions coverage;
   bool reject_spikes = true;
   double spike_threshold = 6.0;  // robust standard deviations
-  // One-sided sweeps (from 0 to +B) prepared from their side; off until the
-  // fit carries an odd-in-B term (then they are fitted and marked one-sided).
+  // One-sided sweeps (from 0 to +B) prepared from their side and fitted with
+  // the odd-in-B term (fit::SweepFitOptions::fit_odd_term), marked
+  // "one-sided". Off by default: `lphi fit` still refuses a sweep that does
+  // not cross zero field; the live pipeline may turn it on.
   bool allow_one_sided = false;
   // chi2_red against the sweep's noise above this keeps the sweep out of
   // L_phi(T); between 1 and this the length's error is scaled by
