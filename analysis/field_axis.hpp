@@ -92,7 +92,9 @@ struct Centre {
 // kMinPointsPerSide readings on either side of zero, or has no curvature to
 // centre on: S(c) without a minimum, or a centre uncertain by more than a
 // tenth of the leg's shorter reach (a flat sweep without a cusp above the
-// noise).
+// noise; also when, across the trial centres, S grows by less than
+// max(25, 8 sqrt(2K)) noise variances above its minimum, which is how far the
+// smallest of many trials falls below their mean from noise alone).
 //
 // The rate near zero is the slope of a least-squares line of B against t over
 // the readings with |B| within a quarter of the shorter reach (at least the 5
