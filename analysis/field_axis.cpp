@@ -224,45 +224,12 @@ double rate_near_zero(std::span<const LegPoint> leg, double reach_t) {
 
 }  // namespace
 
-Centre find_centre(std::span<const LegPoint> leg) {
-  for (std::size_t i = 0; i < leg.size(); ++i) {
-    if (!std::isfinite(leg[i].field_t) || !std::isfinite(leg[i].value))
-      return refuse(fmt::format("reading {} of the leg has a non-finite field or value", i));
-  }
-  if (leg.size() < 2 * kMinPointsPerSide)
-    return refuse(fmt::format("the leg has {} readings; at least {} are needed to centre it",
-                              leg.size(), 2 * kMinPointsPerSide));
+namespace {
 
-  // The curve sorted by field, readings repeated at one field averaged.
-  std::vector<std::size_t> order(leg.size());
-  for (std::size_t i = 0; i < leg.size(); ++i) order[i] = i;
-  std::stable_sort(order.begin(), order.end(),
-                   [&](std::size_t a, std::size_t b) { return leg[a].field_t < leg[b].field_t; });
-  std::vector<double> x, y;
-  double repeats = 0.0;
-  for (std::size_t i : order) {
-    if (!x.empty() && x.back() == leg[i].field_t) {
-      repeats += 1.0;
-      y.back() += (leg[i].value - y.back()) / repeats;
-    } else {
-      x.push_back(leg[i].field_t);
-      y.push_back(leg[i].value);
-      repeats = 1.0;
-    }
-  }
-  const auto n_negative = static_cast<std::size_t>(
-      std::count_if(x.begin(), x.end(), [](double b) { return b < 0.0; }));
-  const auto n_positive = static_cast<std::size_t>(
-      std::count_if(x.begin(), x.end(), [](double b) { return b > 0.0; }));
-  if (n_negative == 0 || n_positive == 0)
-    return refuse("the leg does not cross zero field (readings from " + mt(x.front()) + " to " +
-                  mt(x.back()) + ")");
-  if (n_negative < kMinPointsPerSide || n_positive < kMinPointsPerSide)
-    return refuse(fmt::format(
-        "too few readings to centre the leg: {} below and {} above zero field (at least {} "
-        "needed on each side)",
-        n_negative, n_positive, kMinPointsPerSide));
-
+// The centre of symmetry of a sorted curve (distinct fields, both signs of
+// B, enough readings on each side: find_centre checks). Without the rate and
+// direction, which need the leg's times.
+Centre centre_of_curve(const std::vector<double>& x, const std::vector<double>& y) {
   const double reach = std::min(-x.front(), x.back());
   const double step = median_step(x);
   // Trial centres within +-reach/4, differences out to 3 reach/4 from each:
@@ -355,6 +322,101 @@ Centre find_centre(std::span<const LegPoint> leg) {
   out.centre_t = centre;
   out.centre_err_t = err;
   out.n_differences = k;
+  return out;
+}
+
+// A curve of more than kMaxCentringPoints readings is centred on its means
+// over kMaxCentringPoints equal field bins (the cost of the search grows as
+// the square of the points; the bins average the noise down, and a bin is
+// far narrower than any cusp a sweep of that many readings resolves).
+void bin_curve(std::vector<double>& x, std::vector<double>& y) {
+  if (x.size() <= kMaxCentringPoints) return;
+  const double lo = x.front(), width = (x.back() - x.front()) / static_cast<double>(kMaxCentringPoints);
+  std::vector<double> bx, by;
+  double sx = 0.0, sy = 0.0, n = 0.0;
+  std::size_t bin = 0;
+  for (std::size_t i = 0; i < x.size(); ++i) {
+    const auto b = std::min(kMaxCentringPoints - 1, static_cast<std::size_t>((x[i] - lo) / width));
+    if (b != bin && n > 0.0) {
+      bx.push_back(sx / n);
+      by.push_back(sy / n);
+      sx = sy = n = 0.0;
+    }
+    bin = b;
+    sx += x[i];
+    sy += y[i];
+    n += 1.0;
+  }
+  if (n > 0.0) {
+    bx.push_back(sx / n);
+    by.push_back(sy / n);
+  }
+  x = std::move(bx);
+  y = std::move(by);
+}
+
+}  // namespace
+
+Centre find_centre(std::span<const LegPoint> leg) {
+  for (std::size_t i = 0; i < leg.size(); ++i) {
+    if (!std::isfinite(leg[i].field_t) || !std::isfinite(leg[i].value))
+      return refuse(fmt::format("reading {} of the leg has a non-finite field or value", i));
+  }
+  if (leg.size() < 2 * kMinPointsPerSide)
+    return refuse(fmt::format("the leg has {} readings; at least {} are needed to centre it",
+                              leg.size(), 2 * kMinPointsPerSide));
+
+  // The curve sorted by field, readings repeated at one field averaged.
+  std::vector<std::size_t> order(leg.size());
+  for (std::size_t i = 0; i < leg.size(); ++i) order[i] = i;
+  std::stable_sort(order.begin(), order.end(),
+                   [&](std::size_t a, std::size_t b) { return leg[a].field_t < leg[b].field_t; });
+  std::vector<double> x, y;
+  double repeats = 0.0;
+  for (std::size_t i : order) {
+    if (!x.empty() && x.back() == leg[i].field_t) {
+      repeats += 1.0;
+      y.back() += (leg[i].value - y.back()) / repeats;
+    } else {
+      x.push_back(leg[i].field_t);
+      y.push_back(leg[i].value);
+      repeats = 1.0;
+    }
+  }
+  const auto n_negative = static_cast<std::size_t>(
+      std::count_if(x.begin(), x.end(), [](double b) { return b < 0.0; }));
+  const auto n_positive = static_cast<std::size_t>(
+      std::count_if(x.begin(), x.end(), [](double b) { return b > 0.0; }));
+  if (n_negative == 0 || n_positive == 0)
+    return refuse("the leg does not cross zero field (readings from " + mt(x.front()) + " to " +
+                  mt(x.back()) + ")");
+  if (n_negative < kMinPointsPerSide || n_positive < kMinPointsPerSide)
+    return refuse(fmt::format(
+        "too few readings to centre the leg: {} below and {} above zero field (at least {} "
+        "needed on each side)",
+        n_negative, n_positive, kMinPointsPerSide));
+
+  bin_curve(x, y);
+  Centre out = centre_of_curve(x, y);
+  if (!out.ok) return out;
+  // The error from the curvature of S understates the scatter of the centre
+  // when one field step changes the curve by less than the noise (a cusp
+  // much wider than the step: B_phi a sizeable part of the sweep). The two
+  // interleaved halves of the readings give two independent centres whose
+  // half difference has the full estimate's standard deviation; the larger
+  // of the two errors is quoted (a single such difference is itself
+  // uncertain, so this errs on the side of a larger error).
+  if (x.size() >= 8 * kMinPointsPerSide) {
+    std::vector<double> xe, ye, xo, yo;
+    for (std::size_t i = 0; i < x.size(); ++i) {
+      (i % 2 == 0 ? xe : xo).push_back(x[i]);
+      (i % 2 == 0 ? ye : yo).push_back(y[i]);
+    }
+    const Centre even = centre_of_curve(xe, ye), odd = centre_of_curve(xo, yo);
+    if (even.ok && odd.ok)
+      out.centre_err_t = std::max(out.centre_err_t, 0.5 * std::abs(even.centre_t - odd.centre_t));
+  }
+  const double reach = std::min(-x.front(), x.back());
   out.rate_t_per_s = rate_near_zero(leg, 0.25 * reach);
   const double rise = leg.back().field_t - leg.front().field_t;
   out.direction = rise > 0.0 ? 1.0 : (rise < 0.0 ? -1.0 : 0.0);

@@ -100,6 +100,14 @@ struct Centre {
 // the readings with |B| within a quarter of the shorter reach (at least the 5
 // nearest zero field).
 inline constexpr std::size_t kMinPointsPerSide = 5;
+
+// A leg of more readings is centred on its means over this many equal field
+// bins (the search's cost grows as the square of the points: a 10 000-reading
+// leg took seconds). Its error is the larger of the one from the curvature of
+// the mirrored differences and half the difference of the centres of the two
+// interleaved halves of the (binned) readings, which also holds where the
+// curvature's error understates the scatter (a cusp much wider than a step).
+inline constexpr std::size_t kMaxCentringPoints = 2000;
 Centre find_centre(std::span<const LegPoint> leg);
 
 // Remanence and lag from an up and a down leg of the same plateau.

@@ -7,6 +7,7 @@
 
 #include <fmt/format.h>
 
+#include "analysis/constants.hpp"
 #include "analysis/magnetoconductance.hpp"
 #include "analysis/sweep_residuals.hpp"
 
@@ -166,7 +167,11 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
   for (LegAxis& leg : a.legs) {
     if (!leg.centre.ok) continue;
     ++n_centred;
-    leg.shift_t = leg.centre.centre_t;
+    // Shifted only by a centre that differs from zero by more than
+    // kSignificantOffset of its standard errors: a shift by a centre within
+    // its noise would move the mirror point by that noise for nothing.
+    if (std::abs(leg.centre.centre_t) > kSignificantOffset * leg.centre.centre_err_t)
+      leg.shift_t = leg.centre.centre_t;
     if (std::isfinite(leg.centre.rate_t_per_s)) rates.push_back(leg.centre.rate_t_per_s);
   }
   if (n_centred == 2 && a.legs[0].centre.direction * a.legs[1].centre.direction < 0.0) {
@@ -251,6 +256,37 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
       fit::SweepFitOptions fit_options = options.fit;
       if (!a.prepared.symmetrized) fit_options.fit_odd_term = true;
       a.fit = fit::fit_sweep(a.prepared.points, fit_options);
+      // The centring is kept only if the model describes the centred sweep
+      // better than the sweep about the reading's zero: a centre that noise
+      // moved off (its error understated, see field_axis.hpp) then costs
+      // nothing, while a real offset or lag lowers the residuals by far.
+      bool any_shift = false;
+      for (const LegAxis& leg : a.legs) any_shift = any_shift || leg.shift_t != 0.0;
+      if (any_shift && a.fit.ok) {
+        std::vector<conductance::FieldPoint> unshifted;
+        for (std::size_t l = 0; l < kept.size(); ++l)
+          for (const field_axis::LegPoint& p : kept[l]) unshifted.push_back({p.field_t, p.value});
+        conductance::PreparedSweep plain;
+        if (conductance::prepare_sweep(unshifted, prep, plain).ok) {
+          fit::SweepFitOptions plain_options = options.fit;
+          if (!plain.symmetrized) plain_options.fit_odd_term = true;
+          fit::SweepFitResult plain_fit = fit::fit_sweep(plain.points, plain_options);
+          // Judged against each preparation's own noise: interpolating the
+          // mirror branch averages noise away, so the raw residual variances
+          // of the two are not comparable.
+          const auto centred_chi2 = fit::chi2_red_against_noise(a.prepared.points, a.fit, fit_options);
+          const auto plain_chi2 = plain_fit.ok ? fit::chi2_red_against_noise(plain.points, plain_fit, plain_options)
+                                               : std::nullopt;
+          if (plain_chi2 && (!centred_chi2 || *plain_chi2 <= *centred_chi2)) {
+            a.prepared = std::move(plain);
+            a.prepared.field_offset_t = 0.0;
+            a.fit = std::move(plain_fit);
+            fit_options = plain_options;
+            for (LegAxis& leg : a.legs) leg.shift_t = 0.0;
+            shifted = reading;
+          }
+        }
+      }
       a.point_noise_s = conductance::point_noise_s(a.prepared.points);
       if (a.fit.ok) {
         a.chi2_red_quantum = a.fit.chi2_red;
@@ -274,7 +310,21 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
     a.fit.error = "the sweep was not fitted";
 
   // Judge the fit.
-  const double b_phi = a.fit.ok ? a.fit.b_phi_t : kNaN;
+  // The field at which the fitted model leaves its low-field regime (its
+  // characteristic field, analysis/sweep_fit.hpp): B_phi for a film, the
+  // larger of B_phi and B_so with spin-orbit, sqrt(3) hbar / (e w L_phi) for
+  // a wire. The cusp, the offset and the sweep rate are judged against it.
+  double b_phi = a.fit.ok ? a.fit.b_phi_t : kNaN;
+  if (a.fit.ok && options.fit.model == mc::Model::wire1d && options.fit.geometry.width_m > 0.0) {
+    auto wire_field = [&](double length_m) {
+      return std::sqrt(3.0) * si::hbar_j_s / (si::elementary_charge_c * options.fit.geometry.width_m * length_m);
+    };
+    b_phi = wire_field(a.fit.lphi_m);
+    if (a.fit.lso_m && *a.fit.lso_m > 0.0) b_phi = std::max(b_phi, wire_field(*a.fit.lso_m));
+  } else if (a.fit.ok && a.fit.lso_m && *a.fit.lso_m > 0.0) {
+    b_phi = std::max(b_phi, mc::characteristic_field_t(*a.fit.lso_m));
+  }
+  a.characteristic_field_t = b_phi;
   if (a.fitted && !a.fit.ok) note(a, "fit-failed", "the fit failed: " + a.fit.error);
   if (a.fitted && !a.prepared.symmetrized)
     note(a, "one-sided",

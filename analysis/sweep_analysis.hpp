@@ -8,7 +8,8 @@
 //      field or a sheet resistance <= 0: the error names the leg and reading);
 //   2. drop isolated spikes from each leg (conductance::reject_spikes);
 //   3. centre each leg (field_axis::find_centre) and shift its fields by its
-//      own centre, which removes a remanent field and a lag alike; with an up
+//      own centre when that is significant (kSignificantOffset standard
+//      errors), which removes a remanent field and a lag alike; with an up
 //      and a down leg, split the centres into remanence and lag;
 //   4. coverage before fitting (field_axis::coverage_before): a hole across
 //      zero field or too few readings near it => no fit;
@@ -46,6 +47,10 @@ inline constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 // threshold of the field-offset alert.
 inline constexpr double kOffsetAlertFraction = 0.2;
 
+// A leg is shifted by its centre only when the centre differs from zero by
+// more than this many of its standard errors (the centre is still reported).
+inline constexpr double kSignificantOffset = 2.0;
+
 // One reading as the instruments give it.
 struct Reading {
   double t_s = kNaN;             // NaN when unknown
@@ -81,7 +86,10 @@ struct LegAxis {
   field_axis::Centre centre;
   std::size_t n_readings = 0;
   std::size_t n_spikes = 0;      // readings dropped as spikes
-  double shift_t = 0.0;          // the offset its fields were shifted by
+  // The offset its fields were shifted by for the fit: its centre when that
+  // is significant (kSignificantOffset) and the centred sweep fits the model
+  // better than the sweep about the reading's zero; else 0.
+  double shift_t = 0.0;
 };
 
 struct Analysis {
@@ -116,6 +124,10 @@ struct Analysis {
   std::optional<double> chi2_red;        // against the sweep's own noise
   double chi2_red_quantum = kNaN;        // fit_sweep's, in (e^2/(pi h))^2
   double error_scale = 1.0;              // sqrt(max(1, chi2_red))
+  // The field at which the fitted model leaves its low-field regime: B_phi
+  // for a film, max(B_phi, B_so) with spin-orbit, sqrt(3) hbar/(e w L_phi)
+  // for a wire. Coverage, the offset and the sweep rate are judged against it.
+  double characteristic_field_t = kNaN;
   // sigma(0) and R_sq(0) with the fitted offset (prepared estimate + offset).
   double sigma0_s = kNaN, sigma0_err_s = kNaN;
   double rsq0_ohm = kNaN, rsq0_err_ohm = kNaN;

@@ -12,6 +12,10 @@ namespace lphi::drift {
 namespace {
 
 constexpr std::size_t kBins = 16;
+// An effect on L_phi below this fraction is negligible whatever the fit's
+// own error (lphi's choice: a sweep with a 0.003 % error is not left out
+// for a 0.004 % drift; L_phi(T) is not read to better than this).
+constexpr double kNegligibleEffect = 0.005;
 // A usable sweep's drift is stated when it is at least this fraction of T.
 constexpr double kStatedDrift = 0.005;
 
@@ -111,7 +115,7 @@ DriftJudgement judge(std::span<const DriftPoint> points, double field_centre_t, 
         "around {:.4g} K), more than {:.0f} %: a ramp, during which the thermometer and the "
         "electrons need not agree",
         100.0 * ramp, j.drift_k, j.temperature_k, 100.0 * options.max_ramp_fraction);
-  } else if (j.effect_rel > lphi_rel_err) {
+  } else if (j.effect_rel > std::max(lphi_rel_err, kNegligibleEffect)) {
     j.reason = "temperature-drift";
     j.sentence = fmt::format(
         "the temperature drifted by {:.1f} % (and strayed {:.2g} K from a straight line) over the "

@@ -21,8 +21,9 @@
 // drift symmetric about T_eff (its first-order part cancels: the mean of
 // (1 + u)^(-s) over u uniform in [-a, a] is 1 + s (s + 1) a^2 / 6 + O(a^4));
 // the second is the first-order effect of a change the line does not follow.
-// The sweep is usable when effect <= the fit's relative error of L_phi (the
-// drift moves L_phi by less than its statistical error), and when the
+// The sweep is usable when effect <= the larger of the fit's relative error
+// of L_phi and 0.5 % (the drift moves L_phi by less than its statistical
+// error, or by a negligible amount; lphi's choice), and when the
 // relative change over the window, |delta| / T_eff, is at most
 // max_ramp_fraction (default 0.1): beyond that the sweep is a temperature
 // ramp, during which the thermometer and the electrons need not agree (a

@@ -66,6 +66,8 @@ nlohmann::json sweep_analysis_json(const sweep::Analysis& a) {
   j["field_offset_t"] = a.offset_known ? finite_json(a.field_offset_t) : nlohmann::json(nullptr);
   j["field_offset_err_t"] = finite_json(a.field_offset_err_t);
   j["remanent_field_t"] = finite_json(a.remanent_field_t);
+  j["lag_field_t"] = finite_json(a.lag_shift_t);
+  j["characteristic_field_t"] = finite_json(a.characteristic_field_t);
   j["field_lag_s"] = finite_json(a.field_lag_s);
   j["field_lag_err_s"] = finite_json(a.field_lag_err_s);
   j["sweep_rate_t_per_s"] = finite_json(a.sweep_rate_t_per_s);
@@ -83,6 +85,7 @@ nlohmann::json sweep_analysis_json(const sweep::Analysis& a) {
                     {"n_readings", l.n_readings},
                     {"n_spikes", l.n_spikes},
                     {"centred", l.centre.ok},
+                    {"shift_t", l.shift_t},
                     {"reason", l.centre.reason}});
   }
   j["legs"] = legs;

@@ -27,6 +27,9 @@ struct CubicStencil {
   std::array<double, 4> weight{};
 };
 
+// The largest sum of squared cubic weights accepted (see cubic_stencil).
+inline constexpr double kMaxCubicNoiseGain = 1.5;
+
 // x: sorted, strictly increasing, not empty.
 inline CubicStencil cubic_stencil(std::span<const double> x, double at) {
   CubicStencil s;
@@ -55,11 +58,28 @@ inline CubicStencil cubic_stencil(std::span<const double> x, double at) {
   }
   s.first = std::min(upper >= 2 ? upper - 2 : std::size_t{0}, n - 4);
   s.count = 4;
+  double noise_gain = 0.0;  // sum of the squared weights
   for (std::size_t j = 0; j < 4; ++j) {
     double w = 1.0;
     for (std::size_t k = 0; k < 4; ++k)
       if (k != j) w *= (at - x[s.first + k]) / (x[s.first + j] - x[s.first + k]);
     s.weight[j] = w;
+    noise_gain += w * w;
+  }
+  // Nodes that nearly coincide (two legs of a sweep read at almost the same
+  // fields) make the Lagrange weights large and of both signs, and the
+  // interpolated value amplifies the readings' noise many times. Then the
+  // straight line between the two bracketing readings is taken instead: its
+  // noise gain is at most 1, and with nodes that close its h^2 f''/8 error
+  // is small. Evenly spaced nodes give at most 0.64 inside and 1.08 at the
+  // ends of the curve, so the limit 1.5 leaves them cubic.
+  if (noise_gain > kMaxCubicNoiseGain) {
+    const double t = (at - x[upper - 1]) / (x[upper] - x[upper - 1]);
+    s = CubicStencil{};
+    s.first = upper - 1;
+    s.count = 2;
+    s.weight[0] = 1.0 - t;
+    s.weight[1] = t;
   }
   return s;
 }

@@ -113,7 +113,8 @@ void RecordPublisher::publish_fits(const PipelineOutput& out, const std::map<std
       };
       fact.field_offset_t = number("field_offset_t");
       fact.lag_field_t = number("lag_field_t");
-      fact.b_phi_t = number("b_phi_t");
+      // The model's characteristic field (B_phi for a film; the wire's own).
+      fact.b_phi_t = number("characteristic_field_t");
       if (const auto it = f.result.find("advice"); it != f.result.end() && it->is_string())
         fact.advice = it->get<std::string>();
       engine_->on_fit(fact);

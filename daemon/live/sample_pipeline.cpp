@@ -8,8 +8,10 @@
 #include <cmath>
 #include <utility>
 
+#include <fmt/format.h>
+
 #include "analysis/conductance.hpp"
-#include "analysis/sweep_residuals.hpp"
+#include "analysis/sweep_analysis.hpp"
 #include "analysis/verdict.hpp"
 #include "daemon/live/fit_admission.hpp"
 #include "schema/result_json.hpp"
@@ -268,77 +270,52 @@ FitRecord SamplePipeline::fit_points(const std::vector<const segment::Sweep*>& s
   FitRecord rec;
   rec.model = std::string(mc::model_name(settings_.model));
   rec.t_s = last.t_end_s;
-  std::vector<conductance::FieldPoint> rsq;
+  // One leg per sweep (two for a combined up and down pair), in time order:
+  // the sweep analysis centres each on its own cusp (analysis/sweep_analysis.hpp).
+  std::vector<std::vector<sweep::Reading>> legs;
   for (const auto* s : sweeps) {
+    auto& leg = legs.emplace_back();
+    leg.reserve(s->points.size());
     for (const auto& p : s->points) {
       const double r = conductance::resistance_ohm(p.x_v, settings_.excitation_a, settings_.gain);
-      rsq.push_back({p.field_t, conductance::sheet_resistance_ohm(r, settings_.geometry.squares)});
+      leg.push_back({p.t_s, p.field_t, conductance::sheet_resistance_ohm(r, settings_.geometry.squares),
+                     p.time_constant_s});
     }
   }
-  conductance::PreparedSweep prepared;
-  const auto status = conductance::prepare_sweep(rsq, prepared);
-  if (!status.ok) {
-    rec.error = "the sweep could not be prepared: " + status.error;
+  sweep::Options options;
+  options.fit.model = settings_.model;
+  options.fit.geometry = settings_.geometry;
+  options.fit.alpha_fixed = settings_.alpha_fixed;
+  options.fit.fit_background = settings_.fit_background;
+  options.fit.window_t = settings_.fit_window_t;
+  options.temperature_k = last.temperature.mean_k;
+  const sweep::Analysis a = sweep::analyze(legs, options);
+  rec.result = schema::sweep_analysis_json(a);
+  if (!a.ok) {
+    rec.error = "the sweep could not be analysed: " + a.error;
     rec.quality = {"fit-failed: " + rec.error};
-    rec.result = nlohmann::json{{"model", rec.model}, {"error", rec.error}};
+    rec.result["error"] = rec.error;
     return rec;
   }
-  rec.sigma0_s = prepared.sigma0_s;
-  rec.sigma0_err_s = prepared.sigma0_err_s;
-  fit::SweepFitOptions options;
-  options.model = settings_.model;
-  options.geometry = settings_.geometry;
-  options.alpha_fixed = settings_.alpha_fixed;
-  options.fit_background = settings_.fit_background;
-  options.window_t = settings_.fit_window_t;
-  const fit::SweepFitResult result = fit::fit_sweep(prepared.points, options);
-  rec.ok = result.ok;
-  rec.error = result.ok ? "" : "the fit failed: " + result.error;
-  rec.lphi_m = result.lphi_m;
-  rec.lphi_err_m = result.lphi_err_m;
-  // The fit has no point errors (the covariance is scaled by its own
-  // residuals). Its quality is judged against the noise of the points,
-  // estimated point by point (fit::chi2_red_against_noise): the field
-  // reading's noise makes the steep points near zero field noisier than the
-  // flat far ones. chi2_red here is dimensionless, about 1 when the model
-  // describes the sweep. point_noise_s, the sweep's median
-  // noise, is reported beside it.
-  const double noise_s = conductance::point_noise_s(prepared.points);
-  const std::optional<double> noise_chi2 =
-      result.ok ? fit::chi2_red_against_noise(prepared.points, result, options) : std::nullopt;
-  const bool noise_known = noise_chi2.has_value() && noise_s > 0.0;
-  fit::SweepFitResult judged = result;
-  if (noise_known) judged.chi2_red = *noise_chi2;
-  rec.chi2_red = judged.chi2_red;
-  rec.converged = result.converged;
-  for (fit::Flag f : result.flags) rec.flags.emplace_back(fit::flag_name(f));
-  // sigma(0): the robust estimate from the innermost points, corrected by
-  // the fitted offset (Delta sigma = sigma(B) - estimate; the model is 0 at
-  // B = 0, so sigma(0) = estimate + offset). The innermost points' a + cB^2
-  // form is biased when B_phi is below their field span; the model is not.
-  if (result.ok && options.fit_offset && std::isfinite(result.offset_s) &&
-      std::isfinite(result.offset_err_s) && result.offset_err_s > 0.0) {
-    rec.sigma0_s = prepared.sigma0_s + result.offset_s;
-    rec.sigma0_err_s = result.offset_err_s;
+  for (const auto& leg : a.legs) rec.leg_centres.push_back(leg.centre);
+  rec.ok = a.fitted && a.fit.ok;
+  rec.error = rec.ok ? "" : (a.fitted ? "the fit failed: " + a.fit.error : a.fit.error);
+  if (!rec.ok) rec.result["error"] = rec.error;
+  rec.lphi_m = a.fit.lphi_m;
+  rec.lphi_err_m = a.fit.lphi_err_m;
+  // chi2_red against the sweep's own noise (dimensionless, about 1 when the
+  // model describes the sweep); fit_sweep's own is in the result as
+  // chi2_red_quantum.
+  rec.chi2_red = a.chi2_red.value_or(a.fit.chi2_red);
+  rec.converged = a.fit.converged;
+  for (fit::Flag f : a.fit.flags) rec.flags.emplace_back(fit::flag_name(f));
+  if (a.fitted && std::isfinite(a.sigma0_s) && a.sigma0_s > 0.0) {
+    rec.sigma0_s = a.sigma0_s;
+    rec.sigma0_err_s = a.sigma0_err_s;
   }
-  rec.result = schema::sweep_fit_json(result, prepared);
-  // chi2_red: against the estimated noise (null when it is unknown);
-  // chi2_red_quantum: fit_sweep's own, in (e^2/(pi h))^2.
-  rec.result["chi2_red"] = noise_known ? nlohmann::json(judged.chi2_red) : nlohmann::json(nullptr);
-  rec.result["chi2_red_quantum"] = result.ok ? nlohmann::json(result.chi2_red) : nlohmann::json(nullptr);
-  rec.result["point_noise_s"] = noise_known ? nlohmann::json(noise_s) : nlohmann::json(nullptr);
-  rec.result["sigma_zero_s"] = rec.sigma0_s ? nlohmann::json(*rec.sigma0_s) : nlohmann::json(nullptr);
-  rec.result["sigma_zero_err_s"] = rec.sigma0_err_s ? nlohmann::json(*rec.sigma0_err_s) : nlohmann::json(nullptr);
-  if (!result.ok) rec.result["error"] = rec.error;
-  // The reasons name a chi2_red above the limit (the fit-chi2 alert judges
-  // it), but it does not keep a fit out of L_phi(T): a sweep slightly
-  // distorted near zero field (a lock-in filter lagging the ramp, say)
-  // still gives a usable L_phi with its scaled error, and dropping it would
-  // starve the saturation fit of exactly its coldest points.
-  const auto q = checks::fit_quality(judged, noise_known, settings_.quality);
-  const auto usable = checks::fit_quality(result, false, settings_.quality);
-  rec.quality = q.reasons;
-  rec.used_in_dephasing = usable.usable_for_dephasing && std::isfinite(rec.lphi_m) && rec.lphi_m > 0.0;
+  for (const auto& reason : a.reasons) rec.quality.push_back(reason.name + ": " + reason.sentence);
+  const auto usable = checks::fit_quality(a.fit, false, settings_.quality);
+  rec.used_in_dephasing = a.usable && usable.usable_for_dephasing;
   return rec;
 }
 
@@ -384,6 +361,7 @@ void SamplePipeline::fit_and_record(std::vector<const segment::Sweep*> sweeps, P
       fitted_p != fitted_p_.end() ? std::optional<double>(fitted_p->second) : std::nullopt);
   judge_temperature(rec, sweeps, exponent_s, !rec.from_store);
   if (!rec.from_store) compare_with_plateau(rec, fits_, exponent_s);
+  if (sweeps.size() == 1) split_field_axis(rec, *sweeps.front());
   for (const auto* s : sweeps) sweep_cooldown_.erase(s->index);
   fits_.push_back(rec);
   out.fits.push_back(rec);
@@ -392,6 +370,66 @@ void SamplePipeline::fit_and_record(std::vector<const segment::Sweep*> sweeps, P
     out.verdicts.push_back(assess(rec));
     if (const auto& p = out.verdicts.back().exponent_p; p && std::isfinite(*p)) fitted_p_[rec.cooldown] = *p;
   }
+}
+
+// Remanence and lag from a single leg and the leg of the other direction
+// before it on the same temperature run (field_axis::split): the common part
+// of their centres is the remanent field, the opposite part rate x delay.
+// A lag field above kOffsetAlertFraction of B_phi is noted, with advice when
+// the fit has none. A fit read back from the store is not changed, but its
+// centre (from its result's "legs") is remembered, so that the split after
+// a restart is the one made before it.
+void SamplePipeline::split_field_axis(FitRecord& rec, const segment::Sweep& leg) {
+  field_axis::Centre centre;
+  if (rec.leg_centres.size() == 1) {
+    centre = rec.leg_centres.front();
+  } else if (const auto legs = rec.result.find("legs");
+             legs != rec.result.end() && legs->is_array() && legs->size() == 1) {
+    const nlohmann::json& l = legs->front();
+    centre.ok = l.value("centred", false);
+    auto number = [&](const char* key) {
+      const auto it = l.find(key);
+      return it != l.end() && it->is_number() ? it->get<double>() : field_axis::kUnknown;
+    };
+    centre.centre_t = number("centre_t");
+    centre.centre_err_t = number("centre_err_t");
+    centre.rate_t_per_s = number("rate_t_per_s");
+  }
+  if (!centre.ok) return;
+  auto previous = last_leg_.find(rec.temperature_run);
+  if (!rec.from_store && previous != last_leg_.end() && previous->second.direction != leg.direction) {
+    const bool up = leg.direction == segment::Direction::up;
+    const field_axis::Split split =
+        field_axis::split(up ? centre : previous->second.centre, up ? previous->second.centre : centre);
+    auto number = [](double v) { return std::isfinite(v) ? nlohmann::json(v) : nlohmann::json(nullptr); };
+    rec.result["remanent_field_t"] = number(split.remanent_field_t);
+    rec.result["remanent_field_err_t"] = number(split.offset_err_t);
+    rec.result["lag_field_t"] = number(split.opposite_t);
+    rec.result["lag_field_err_t"] = number(split.opposite_err_t);
+    rec.result["field_lag_s"] = number(split.delay_s);
+    rec.result["field_lag_err_s"] = number(split.delay_err_s);
+    rec.result["lag_partner_sweep_index"] = previous->second.sweep_index;
+    const auto field = rec.result.find("characteristic_field_t");
+    const double b_phi = field != rec.result.end() && field->is_number() ? field->get<double>() : 0.0;
+    if (rec.ok && std::isfinite(split.opposite_t) && b_phi > 0.0 &&
+        std::abs(split.opposite_t) > sweep::kOffsetAlertFraction * b_phi) {
+      const double rate = split.rate_t_per_s;
+      const std::string note = fmt::format(
+          "the centres of this leg and sweep {} differ by {:.3g} mT ({:.2g} B_phi): a lag of {:.3g} s "
+          "between the field reading and the lock-in, corrected leg by leg before the fit",
+          previous->second.sweep_index, 2e3 * std::abs(split.opposite_t), 2.0 * std::abs(split.opposite_t) / b_phi,
+          split.delay_s);
+      rec.quality.push_back("field-lag: " + note);
+      if (rec.result.value("advice", std::string()).empty() && std::isfinite(split.delay_s) &&
+          std::abs(split.delay_s) > 0.0 && std::isfinite(rate)) {
+        // A lag d shifts each leg by r d; below 0.1 B_phi it no longer matters.
+        rec.result["advice"] = fmt::format(
+            "the up and down sweeps lag by {:.2g} s: slow the sweep to {:.2g} mT/min near zero field",
+            std::abs(split.delay_s), 0.1 * b_phi / std::abs(split.delay_s) * 6e4);
+      }
+    }
+  }
+  last_leg_[rec.temperature_run] = {leg.direction, centre, rec.sweep_index};
 }
 
 void SamplePipeline::update_zero_field(const FitRecord& fit, PipelineOutput& out) {

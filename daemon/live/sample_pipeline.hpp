@@ -85,6 +85,7 @@
 
 #include "analysis/alignment.hpp"
 #include "analysis/dephasing.hpp"
+#include "analysis/field_axis.hpp"
 #include "analysis/live_checks.hpp"
 #include "analysis/segmenter.hpp"
 #include "analysis/sweep_fit.hpp"
@@ -159,6 +160,9 @@ struct FitRecord {
   nlohmann::json result;             // sweep_fit_json (the keys of `lphi fit --json`)
   double t_s = 0.0;                  // end of the (later) sweep
   bool from_store = false;           // loaded, not computed (not compared)
+  // The centre of each leg the sweep analysis found (fresh fits only; not
+  // stored, not compared): the remanence and lag split uses them.
+  std::vector<field_axis::Centre> leg_centres;
   bool operator==(const FitRecord& o) const;
 };
 
@@ -233,6 +237,7 @@ class SamplePipeline {
   void fit_and_record(std::vector<const segment::Sweep*> sweeps, PipelineOutput& out);
   void handle(segment::Sweep&& sweep, PipelineOutput& out);
   void update_zero_field(const FitRecord& fit, PipelineOutput& out);
+  void split_field_axis(FitRecord& rec, const segment::Sweep& leg);
   VerdictRecord assess(const FitRecord& trigger) const;
 
   SampleSettings settings_;
@@ -267,6 +272,14 @@ class SamplePipeline {
   // The exponent p of the latest L_phi(T) fit per cooldown: the drift's
   // effect on L_phi is judged with it (fit_admission.hpp).
   std::map<std::int64_t, double> fitted_p_;
+  // The last single leg fitted on each temperature run: its direction and
+  // centre, for the remanence and lag split of the next leg.
+  struct LegCentre {
+    segment::Direction direction = segment::Direction::up;
+    field_axis::Centre centre;
+    std::int64_t sweep_index = 0;
+  };
+  std::map<std::int64_t, LegCentre> last_leg_;
 };
 
 }  // namespace lphi::live

@@ -313,7 +313,9 @@ TEST(SamplePipeline, UnpreparableSweepsFailWithAReason) {
   const PipelineRun r = run_all(plan, data, settings_for(plan));
   ASSERT_EQ(r.all.fits.size(), 2u);
   EXPECT_FALSE(r.all.fits[0].ok);
-  EXPECT_NE(r.all.fits[0].error.find("prepared"), std::string::npos) << r.all.fits[0].error;
+  // The reason names the reading and what is wrong with it.
+  EXPECT_NE(r.all.fits[0].error.find("sheet resistance of -"), std::string::npos) << r.all.fits[0].error;
+  EXPECT_NE(r.all.fits[0].error.find("reading"), std::string::npos) << r.all.fits[0].error;
   EXPECT_FALSE(r.all.fits[0].used_in_dephasing);
   EXPECT_EQ(r.all.verdicts.back().state, "insufficient-data");
 }
