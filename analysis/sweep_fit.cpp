@@ -54,6 +54,7 @@ constexpr double kWindowSettle = 0.05;
 constexpr double kNoSignalP = 1e-3;
 constexpr double kShrinkSigmas = 2.0;
 constexpr double kAlphaUnresolved = 0.5;
+constexpr double kHeldRejectSigmas = 3.0;
 
 Layout make_layout(const Shape& shape, bool alpha_free, double alpha_held, bool offset,
                    bool background, bool odd) {
@@ -427,6 +428,30 @@ bool alpha_unresolved(const Solution& s, const Covariance& c) {
          std::abs(c.corr(l.alpha, l.ln_lphi)) > kDegenerateCorrelation;
 }
 
+// The data reject the held alpha: on the held fit's own window, alpha
+// fitted freely (one LM pass from the held solution) lowers chi-square by
+// more than kHeldRejectSigmas^2 in units of the point variance (the
+// likelihood-ratio test of one parameter, 3 sigma), so alpha_default is not
+// what the sweep shows (an antilocalizing sample fitted with hln2d, say) and
+// the free fit stands.
+bool held_rejected(const Solution& held, const Covariance& held_c, const Shape& shape,
+                   const SweepFitOptions& options, const FieldScales& scales) {
+  Solution free = held;
+  free.layout = make_layout(shape, true, held.layout.alpha_held, options.fit_offset,
+                            options.fit_background, options.fit_odd_term);
+  if (free.layout.size > 5) return false;
+  free.theta = relayout(shape, held.layout, free.layout, held.data, held.theta);
+  free.pass = levenberg_marquardt(shape, free.layout, free.data,
+                                  length_bounds(shape, scales.field_step, free.window),
+                                  options.max_iterations, free.theta, free.residuals,
+                                  free.jacobian_columns);
+  const Covariance free_c = covariance_at(free);
+  if (!std::isfinite(free_c.chi2) || !std::isfinite(held_c.chi2)) return false;
+  const double variance = free.data.errors_known ? 1.0 : free_c.chi2_red;
+  if (!(variance > 0.0) || !std::isfinite(variance)) return false;
+  return (held_c.chi2 - free_c.chi2) / variance > kHeldRejectSigmas * kHeldRejectSigmas;
+}
+
 // The fitted parameters in SI units with their errors, and the fit's summary.
 void report(SweepFitResult& result, const Solution& s, const Covariance& c,
             const FieldScales& scales) {
@@ -619,8 +644,12 @@ SweepFitResult fit_sweep(std::span<const conductance::DeltaSigmaPoint> points,
   if (alpha_unresolved(solution, covariance)) {
     WindowSearch held(all, shape, options, scales, /*hold_alpha=*/true);
     held.start();
-    solution = std::move(held).solve();
-    covariance = covariance_at(solution);
+    Solution held_solution = std::move(held).solve();
+    Covariance held_covariance = covariance_at(held_solution);
+    if (!held_rejected(held_solution, held_covariance, shape, options, scales)) {
+      solution = std::move(held_solution);
+      covariance = std::move(held_covariance);
+    }
   }
   report(result, solution, covariance, scales);
   add_quality_flags(result, solution, covariance, shape, options, scales);

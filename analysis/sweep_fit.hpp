@@ -60,7 +60,12 @@
 // factor of 2), |corr(alpha, ln L_phi)| above 0.995 (alpha_lphi_degenerate
 // below), or a singular covariance. Noisy sweeps are the usual case: the
 // alpha-L_phi degeneracy turns the noise into a wandering L_phi, while the
-// held alpha (the physical value) leaves L_phi determined.
+// held alpha (the physical value) leaves L_phi determined. The held fit is
+// kept only when the data do not reject it: on the held fit's window, alpha
+// fitted freely must not lower chi-square by more than 9 point variances
+// (the likelihood-ratio test of one parameter at 3 sigma); otherwise (an
+// antilocalizing sample fitted with hln2d, whose alpha crosses zero) the
+// first, free fit stands.
 //
 // Start values come from the data: a grid over ln L_phi (and ln L_so) whose
 // characteristic fields run, by factors of 2, from half the mean field step to

@@ -122,6 +122,7 @@ void print_human(const FitOutcome& o, std::ostream& out) {
       t.add("background", format_with_error(*r.background_s_per_t2, r.background_err_s_per_t2,
                                             "S/T^2"));
     }
+    if (r.odd_s_per_t) t.add("odd term", format_with_error(*r.odd_s_per_t, r.odd_err_s_per_t, "S/T"));
     std::string flags;
     for (fit::Flag f : r.flags) flags += (flags.empty() ? "" : ", ") + std::string(fit::flag_name(f));
     t.add("flags", flags.empty() ? "none" : flags);
