@@ -10,6 +10,7 @@
 
 #include <Eigen/Dense>
 #include <algorithm>
+#include <array>
 #include <boost/math/distributions/fisher_f.hpp>
 #include <cmath>
 #include <limits>
@@ -550,28 +551,32 @@ struct SignalTest {
 SignalTest signal_test(const Solution& s, const Covariance& c) {
   const Layout& l = s.layout;
   const Data& d = s.data;
-  const int q = (l.offset >= 0 ? 1 : 0) + (l.background >= 0 ? 1 : 0) + (l.odd >= 0 ? 1 : 0);
-  Eigen::Matrix3d normal = Eigen::Matrix3d::Zero();
-  Eigen::Vector3d rhs = Eigen::Vector3d::Zero();
-  auto row = [&](std::size_t i) {
-    Eigen::Vector3d x = Eigen::Vector3d::Zero();
+  // Normal equations of the linear terms in one pass over the points: the
+  // weighted design row x (offset, background, odd term as fitted) and
+  // target w y; chi2_flat = sum (w y)^2 - rhs^T coef at the solution.
+  const bool offset = l.offset >= 0, background = l.background >= 0, odd = l.odd >= 0;
+  const int q = (offset ? 1 : 0) + (background ? 1 : 0) + (odd ? 1 : 0);
+  Eigen::MatrixXd normal = Eigen::MatrixXd::Zero(q, q);
+  Eigen::VectorXd rhs = Eigen::VectorXd::Zero(q);
+  double yy = 0.0;
+  for (std::size_t i = 0; i < d.size(); ++i) {
+    const double w = d.weight[i], b = d.field_t[i], wy = w * d.y[i];
+    std::array<double, 3> x{};
     int k = 0;
-    if (l.offset >= 0) x[k++] = d.weight[i];
-    if (l.background >= 0) x[k++] = d.weight[i] * d.field_t[i] * d.field_t[i];
-    if (l.odd >= 0) x[k++] = d.weight[i] * d.field_t[i];
-    return x;
-  };
-  for (std::size_t i = 0; i < d.size(); ++i) {
-    const Eigen::Vector3d x = row(i);
-    normal += x * x.transpose();
-    rhs += x * (d.weight[i] * d.y[i]);
+    if (offset) x[static_cast<std::size_t>(k++)] = w;
+    if (background) x[static_cast<std::size_t>(k++)] = w * b * b;
+    if (odd) x[static_cast<std::size_t>(k++)] = w * b;
+    yy += wy * wy;
+    for (int a = 0; a < q; ++a) {
+      rhs[a] += x[static_cast<std::size_t>(a)] * wy;
+      for (int e = 0; e <= a; ++e)
+        normal(a, e) += x[static_cast<std::size_t>(a)] * x[static_cast<std::size_t>(e)];
+    }
   }
-  Eigen::Vector3d coef = Eigen::Vector3d::Zero();
-  if (q > 0) coef.head(q) = normal.topLeftCorner(q, q).ldlt().solve(rhs.head(q));
-  double chi2_flat = 0.0;
-  for (std::size_t i = 0; i < d.size(); ++i) {
-    const double e = d.weight[i] * d.y[i] - coef.dot(row(i));
-    chi2_flat += e * e;
+  double chi2_flat = yy;
+  if (q > 0) {
+    const Eigen::MatrixXd full = normal.selfadjointView<Eigen::Lower>();
+    chi2_flat -= rhs.dot(full.ldlt().solve(rhs));
   }
   const double extra = static_cast<double>(l.size - q);
   const double dof = static_cast<double>(d.size()) - static_cast<double>(l.size);

@@ -37,13 +37,19 @@ void evaluate_hln(const Layout& l, const Data& d, const double* theta, double* r
     const special::BracketAndSlope s = brackets[i];
     const double w = d.weight[i];
     const double b2 = field[i] * field[i];
-    residuals[i] =
-        w * (v.alpha * s.value + v.offset + v.background * b2 + v.odd * field[i] - d.y[i]);
+    residuals[i] = w * (v.alpha * s.value + v.offset + v.background * b2 - d.y[i]);
     j_lphi[i] = -2.0 * w * v.alpha * s.log_slope;
     if (j_alpha != nullptr) j_alpha[i] = w * s.value;
     if (j_offset != nullptr) j_offset[i] = w;
     if (j_background != nullptr) j_background[i] = w * b2;
-    if (j_odd != nullptr) j_odd[i] = w * field[i];
+  }
+  // The odd term in a loop of its own, so that the default fit (without
+  // it) pays nothing for it.
+  if (j_odd != nullptr) {
+    for (std::size_t i = 0; i < n; ++i) {
+      j_odd[i] = d.weight[i] * field[i];
+      residuals[i] += v.odd * j_odd[i];
+    }
   }
 }
 
