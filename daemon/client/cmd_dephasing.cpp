@@ -4,16 +4,19 @@
 #include <cmath>
 #include <iostream>
 #include <memory>
+#include <utility>
 #include <vector>
 
 #include <nlohmann/json.hpp>
 
 #include "analysis/dephasing.hpp"
+#include "daemon/client/column_map.hpp"
 #include "daemon/client/commands.hpp"
 #include "daemon/client/csv_table.hpp"
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/client/format.hpp"
 #include "daemon/client/options.hpp"
+#include "daemon/client/table_checks.hpp"
 #include "schema/result_json.hpp"
 
 namespace lphi::client {
@@ -92,11 +95,21 @@ int run_dephasing(const DephasingRequest& rq, std::ostream& out, std::ostream& e
   if (auto s = read_text_input(rq.input_path, text); !s.ok()) return fail(s.message());
   CsvTable table;
   if (auto s = CsvTable::parse(text, source, table); !s.ok()) return fail(s.message());
+  ColumnMap columns;
+  for (const auto& m : rq.columns) {
+    if (auto s = columns.add(m, dephasing_columns(), "an L_phi(T) table"); !s.ok()) {
+      return fail(s.message());
+    }
+  }
 
   std::vector<double> temperature_k, lphi_m, lphi_err_m;
-  if (auto s = table.numeric_column("temperature_k", temperature_k); !s.ok()) return fail(s.message());
-  if (auto s = table.numeric_column("lphi_m", lphi_m); !s.ok()) return fail(s.message());
-  if (auto s = table.numeric_column("lphi_err_m", lphi_err_m); !s.ok()) return fail(s.message());
+  for (auto [name, values] : {std::pair{"temperature_k", &temperature_k}, std::pair{"lphi_m", &lphi_m},
+                              std::pair{"lphi_err_m", &lphi_err_m}}) {
+    if (auto s = read_si_column(table, columns, name, *values); !s.ok()) return fail(s.message());
+  }
+  if (auto s = check_dephasing_units(table, columns, temperature_k, lphi_m, lphi_err_m); !s.ok()) {
+    return fail(s.message());
+  }
 
   dephasing::DephasingOptions options;
   options.dimension = rq.dimension;
@@ -107,15 +120,15 @@ int run_dephasing(const DephasingRequest& rq, std::ostream& out, std::ostream& e
   std::vector<dephasing::LphiPoint> points;
   for (std::size_t i = 0; i < table.row_count(); ++i) {
     if (!(temperature_k[i] > 0.0)) {
-      return fail(table.where(i, "temperature_k") + ": a temperature must be positive, got " +
+      return fail(where_mapped(table, columns, i, "temperature_k") + ": a temperature must be positive, got " +
                   format_number(temperature_k[i], 6) + " K");
     }
     if (!(lphi_m[i] > 0.0)) {
-      return fail(table.where(i, "lphi_m") + ": L_phi must be positive, got " +
+      return fail(where_mapped(table, columns, i, "lphi_m") + ": L_phi must be positive, got " +
                   format_number(lphi_m[i], 6) + " m");
     }
     if (lphi_err_m[i] < 0.0) {
-      return fail(table.where(i, "lphi_err_m") + ": an error must not be negative, got " +
+      return fail(where_mapped(table, columns, i, "lphi_err_m") + ": an error must not be negative, got " +
                   format_number(lphi_err_m[i], 6) + " m");
     }
     points.push_back({temperature_k[i], lphi_m[i], lphi_err_m[i]});
@@ -151,6 +164,7 @@ void register_dephasing_command(CLI::App& app, int* exit_code) {
   add_optional(sub, "--rsq-ohm", rq->rsq_ohm, "sheet resistance in ohm (2D AAK comparison)");
   add_optional(sub, "--resistance-per-length-ohm-m", rq->resistance_per_length_ohm_m,
                "resistance per length in ohm/m (1D AAK comparison)");
+  sub->add_option("--column", rq->columns, column_option_help(dephasing_columns()));
   sub->add_flag("--json", rq->json, "print one JSON object instead of a table");
   sub->callback([rq, exit_code] { *exit_code = run_dephasing(*rq, std::cout, std::cerr); });
 }

@@ -17,12 +17,15 @@
 #include "analysis/magnetoconductance.hpp"
 #include "analysis/sweep_analysis.hpp"
 #include "analysis/sweep_fit.hpp"
+#include "daemon/client/column_map.hpp"
 #include "daemon/client/commands.hpp"
 #include "daemon/client/csv_table.hpp"
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/client/format.hpp"
 #include "daemon/client/options.hpp"
+#include "daemon/client/table_checks.hpp"
 #include "schema/result_json.hpp"
+#include "schema/text/csv_reader.hpp"
 
 namespace lphi::client {
 namespace {
@@ -176,6 +179,10 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
   CsvTable table;
   if (auto s = CsvTable::parse(text, o.source, table); !s.ok()) return fail(s.message());
   o.rows = table.row_count();
+  ColumnMap columns;
+  for (const auto& m : rq.columns) {
+    if (auto s = columns.add(m, fit_columns(), "a sweep table"); !s.ok()) return fail(s.message());
+  }
 
   if (!rq.input_column.empty()) {
     const auto chosen = signal_from_name(rq.input_column);
@@ -184,16 +191,18 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
                   "' (choose rsq_ohm, r_ohm or lockin_x_v)");
     }
     o.signal = *chosen;
-  } else if (table.has_column("rsq_ohm")) {
+  } else if (has_mapped_column(table, columns, "rsq_ohm")) {
     o.signal = Signal::rsq;
-  } else if (table.has_column("r_ohm")) {
+  } else if (has_mapped_column(table, columns, "r_ohm")) {
     o.signal = Signal::resistance;
-  } else if (table.has_column("lockin_x_v")) {
+  } else if (has_mapped_column(table, columns, "lockin_x_v")) {
     o.signal = Signal::lockin;
   } else {
     return fail(o.source +
                 ": missing a signal column: the sweep needs one of rsq_ohm, r_ohm "
-                "(with --squares) or lockin_x_v (with --current and --squares)");
+                "(with --squares) or lockin_x_v (with --current and --squares); map the file's "
+                "own with --column, e.g. rsq_ohm=R:kohm" +
+                text::CsvReader::delimiter_note(table.header()));
   }
   const std::string signal_column(column_name(o.signal));
   if (o.signal != Signal::rsq && !rq.squares) {
@@ -209,15 +218,19 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
   }
 
   std::vector<double> field_t, signal;
-  if (auto s = table.numeric_column("field_t", field_t); !s.ok()) return fail(s.message());
-  if (auto s = table.numeric_column(signal_column, signal); !s.ok()) return fail(s.message());
+  if (auto s = read_si_column(table, columns, "field_t", field_t); !s.ok()) return fail(s.message());
+  if (auto s = read_si_column(table, columns, signal_column, signal); !s.ok()) return fail(s.message());
   if (table.row_count() == 0) return fail(o.source + ": no data rows below the header");
+  if (auto s = check_sweep_units(table, columns, field_t, signal_column, signal,
+                                 o.signal == Signal::resistance ? *rq.squares : 1.0, err); !s.ok()) {
+    return fail(s.message());
+  }
 
   std::vector<conductance::FieldPoint> points;
   points.reserve(signal.size());
   for (std::size_t i = 0; i < signal.size(); ++i) {
     if (!(signal[i] > 0.0)) {
-      return fail(table.where(i, signal_column) + ": must be positive, got " +
+      return fail(where_mapped(table, columns, i, signal_column) + ": must be positive, got " +
                   format_number(signal[i], 6));
     }
     double rsq = signal[i];
@@ -226,7 +239,7 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
     }
     if (o.signal != Signal::rsq) rsq = conductance::sheet_resistance_ohm(rsq, *rq.squares);
     if (!std::isfinite(rsq) || !(rsq > 0.0)) {
-      return fail(table.where(i, signal_column) + ": gives a sheet resistance of " +
+      return fail(where_mapped(table, columns, i, signal_column) + ": gives a sheet resistance of " +
                   format_number(rsq, 6) + " ohm, not a usable value");
     }
     points.push_back({field_t[i], rsq});
@@ -236,7 +249,7 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
   // path, sweep::Options::allow_one_sided); until then they are refused here.
   const auto [lowest, highest] = std::minmax_element(field_t.begin(), field_t.end());
   if (!(*lowest < 0.0 && *highest > 0.0)) {
-    return fail(o.source + " column 'field_t': the sweep never crosses zero field (B from " +
+    return fail(o.source + " column " + columns.describe("field_t") + ": the sweep never crosses zero field (B from " +
                 format_number(*lowest, 6) + " to " + format_number(*highest, 6) +
                 " T); lphi needs both signs of B to symmetrize");
   }
@@ -306,6 +319,7 @@ void register_fit_command(CLI::App& app, int* exit_code) {
   sub->add_option("--input-column", rq->input_column,
                   "the signal column to use when the table has several "
                   "(default: rsq_ohm, else r_ohm, else lockin_x_v)");
+  sub->add_option("--column", rq->columns, column_option_help(fit_columns()));
   add_optional(sub, "--squares", rq->squares,
                "number of squares L/W between the voltage probes (needed for r_ohm, lockin_x_v)");
   add_optional(sub, "--current", rq->current_a, "rms excitation current in A (for lockin_x_v)");

@@ -401,7 +401,7 @@ void register_replay_command(CLI::App& app, int* exit_code) {
   cmd->add_option_function<double>(
       "--start-unix", [opt](const double& v) { opt->start_unix = v; },
       "Unix time of relative time 0 (default: the recording ends now)");
-  cmd->add_option("--column", opt->columns, "map a column to the file's name for it, e.g. time_s=t_sec (repeatable)");
+  cmd->add_option("--column", opt->columns, column_option_help(recording_columns()));
   cmd->add_option("--connect-timeout-s", opt->connect_timeout_s, "seconds to wait for lphid to answer")
       ->check(CLI::PositiveNumber);
   cmd->add_option("--stall-s", opt->stall_s, "give up when lphid acknowledges or analyses nothing for this long")

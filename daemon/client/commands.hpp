@@ -16,6 +16,7 @@
 #include <optional>
 #include <ostream>
 #include <string>
+#include <vector>
 
 #include <CLI/CLI.hpp>
 
@@ -25,6 +26,7 @@ struct FitRequest {
   std::string input_path;            // "-" for stdin
   std::string model = "hln2d";
   std::string input_column;          // empty: rsq_ohm, else r_ohm, else lockin_x_v
+  std::vector<std::string> columns;  // --column mappings (column_map.hpp)
   std::optional<double> squares;     // L/W between the voltage probes
   std::optional<double> current_a;   // rms excitation current
   std::optional<double> gain;        // voltage preamplifier gain (default 1)
@@ -42,6 +44,7 @@ int run_fit(const FitRequest& request, std::ostream& out, std::ostream& err);
 
 struct DephasingRequest {
   std::string input_path;  // "-" for stdin
+  std::vector<std::string> columns;  // --column mappings (column_map.hpp)
   int dimension = 2;
   std::optional<double> diffusion_m2s;
   std::optional<double> rsq_ohm;

@@ -24,7 +24,8 @@ Status CsvTable::parse(std::string_view text, std::string_view source_name,
       return Status::invalid_input(reader.at_line(reader.line()) + ": row has " +
                                 std::to_string(cells.size()) +
                                 (cells.size() == 1 ? " cell" : " cells") + ", the header has " +
-                                std::to_string(out.header_.size()) + " columns");
+                                std::to_string(out.header_.size()) + " columns" +
+                                text::CsvReader::delimiter_note(cells));
     }
     out.rows_.push_back(Row{reader.line(), std::move(cells)});
   }

@@ -24,7 +24,6 @@ enum Column : std::size_t {
   column_count
 };
 
-std::string trimmed(const std::string& s) { return std::string(text::trim(s)); }
 
 }  // namespace
 
@@ -36,31 +35,13 @@ const std::vector<std::string>& recording_columns() {
 }
 
 Status add_column_mapping(const std::string& mapping, ColumnMap& map) {
-  const auto eq = mapping.find('=');
-  if (eq == std::string::npos || eq == 0 || eq + 1 == mapping.size()) {
-    return Status::invalid_input("--column '" + mapping + "': expected COLUMN=NAME, e.g. time_s=t_sec");
-  }
-  const std::string canonical = trimmed(mapping.substr(0, eq));
-  const std::string name = trimmed(mapping.substr(eq + 1));
-  bool known = false;
-  for (const auto& c : recording_columns()) known = known || c == canonical;
-  if (!known) {
-    std::string list;
-    for (const auto& c : recording_columns()) list += (list.empty() ? "" : ", ") + c;
-    return Status::invalid_input("--column '" + mapping + "': '" + canonical + "' is not a column of a recording (" +
-                              list + ")");
-  }
-  if (name.empty()) return Status::invalid_input("--column '" + mapping + "': the file's column name is empty");
-  if (map.count(canonical) != 0) {
-    return Status::invalid_input("--column '" + mapping + "': '" + canonical + "' is mapped twice");
-  }
-  map[canonical] = name;
-  return Status::success();
+  return map.add(mapping, recording_columns(), "a recording");
 }
 
 Status RecordingReader::open(std::istream& in, std::string source_name, const ColumnMap& map) {
   *this = RecordingReader{};
   source_name_ = std::move(source_name);
+  map_ = map;
   reader_.emplace(in, source_name_);
   std::vector<std::string> header;
   if (auto s = reader_->read_header(header); !s.ok()) return s;
@@ -70,16 +51,16 @@ Status RecordingReader::open(std::istream& in, std::string source_name, const Co
   file_names_.assign(column_count, {});
   const auto& names = recording_columns();
   for (std::size_t c = 0; c < column_count; ++c) {
-    const auto mapped = map.find(names[c]);
-    file_names_[c] = mapped != map.end() ? mapped->second : names[c];
+    file_names_[c] = map.file_name(names[c]);
     for (std::size_t i = 0; i < header.size(); ++i) {
       if (header[i] == file_names_[c]) index_[c] = i;
     }
     if (!index_[c] && c < recording_required_columns) {
       std::string message = reader_->at_line(line) + ": no column '" + file_names_[c] + "'";
-      if (mapped != map.end()) message += " (given for " + names[c] + " by --column)";
+      if (map.renamed(names[c])) message += " (given for " + names[c] + " by --column)";
       message += "; a recording needs time_s, temperature_k, field_t, lockin_x_v, lockin_y_v"
-                 " (map other names with --column " + names[c] + "=NAME)";
+                 " (map other names with --column " + names[c] + "=NAME, or NAME:UNIT)";
+      message += text::CsvReader::delimiter_note(header);
       return Status::invalid_input(message);
     }
   }
@@ -87,9 +68,8 @@ Status RecordingReader::open(std::istream& in, std::string source_name, const Co
 }
 
 std::string RecordingReader::where(std::size_t line, std::size_t canonical) const {
-  std::string text = source_name_ + " line " + std::to_string(line) + ", column '" + file_names_[canonical] + "'";
-  if (file_names_[canonical] != recording_columns()[canonical]) text += " (" + recording_columns()[canonical] + ")";
-  return text;
+  return source_name_ + " line " + std::to_string(line) + ", column " +
+         map_.describe(recording_columns()[canonical]);
 }
 
 bool RecordingReader::next(RecordingRow& row, Status& status) {
@@ -106,7 +86,8 @@ bool RecordingReader::next(RecordingRow& row, Status& status) {
     };
     if (cells_.size() != header_cells_) {
       return fail(reader_->at_line(line) + ": " + std::to_string(cells_.size()) +
-                  " cells, but the header has " + std::to_string(header_cells_));
+                  " cells, but the header has " + std::to_string(header_cells_) +
+                  text::CsvReader::delimiter_note(cells_));
     }
     row = RecordingRow{};
     row.line = line;
@@ -120,7 +101,7 @@ bool RecordingReader::next(RecordingRow& row, Status& status) {
       std::string why;
       auto v = parse_number(*text, &why);
       if (!v) return fail(where(line, c) + ": " + why);
-      out = v;
+      out = *v * map_.to_si(recording_columns()[c]);
       return true;
     };
     std::optional<double> t, temperature, field, x, y, range, tc;
@@ -146,17 +127,16 @@ bool RecordingReader::next(RecordingRow& row, Status& status) {
     }
     previous_t_ = row.t_s;
     if (temperature) {
-      if (!protocol::limits::temperature_in_range(*temperature)) {
-        return fail(where(line, temperature_k) + ": " + format_number(*temperature, 6) +
-                    " K is outside (0, " +
-                    format_number(protocol::limits::max_temperature_k, 6) + ") K");
+      if (auto r = protocol::limits::temperature_refusal(*temperature)) {
+        return fail(limit_message(where(line, temperature_k), *r, "temperature_k", map_,
+                                  *temperature / map_.to_si("temperature_k")));
       }
       row.temperature_k = temperature;
     }
     if (field) {
-      if (!protocol::limits::field_in_range(*field)) {
-        return fail(where(line, field_t) + ": " + format_number(*field, 6) + " T is not below " +
-                    format_number(protocol::limits::max_abs_field_t, 6) + " T in magnitude");
+      if (auto r = protocol::limits::field_refusal(*field)) {
+        return fail(limit_message(where(line, field_t), *r, "field_t", map_,
+                                  *field / map_.to_si("field_t")));
       }
       row.field_t = field;
     }

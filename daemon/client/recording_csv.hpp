@@ -1,8 +1,9 @@
 // The recorded-cooldown CSV that `lphi replay` streams into lphid: one row
 // per instant, holding what a sample's three instruments read then.
 //
-// Columns (names as below, or mapped from the file's own names with
-// ColumnMap, e.g. --column time_s=t_sec):
+// Columns (names as below, or mapped from the file's own names and units
+// with ColumnMap, e.g. --column time_s=t_sec --column field_t=B:mT;
+// daemon/client/column_map.hpp):
 //   time_s                  required in every row: Unix seconds (>= 1e9) or
 //                           seconds relative to the recording's start
 //   temperature_k           the thermometer (empty: no reading in this row)
@@ -15,9 +16,11 @@
 // The lexical rules are those of schema/text/csv_reader.hpp (header line,
 // commas, RFC 4180 quotes, '#' comments, blank lines, CRLF, BOM).
 //
-// Every row is checked as lphid checks a reading (schema/protocol/limits.hpp:
-// T in (0, 1000) K, |B| < 50 T, finite values), and time may not run backward
-// nor mix Unix and relative times (the kind of the first row's time holds).
+// Every row is checked, after conversion to SI, as lphid checks a reading
+// (schema/protocol/limits.hpp: the temperature and field bounds, finite
+// values; a value beyond them is refused with the unit it was likely in),
+// and time may not run backward nor mix Unix and relative times (the kind
+// of the first row's time holds).
 // A bad row is an error naming the file, line and column. The file is read
 // as a stream (a long recording is not held in memory), so a replay reads
 // it twice: scan_recording() first, then RecordingReader again to send.
@@ -30,20 +33,19 @@
 #include <string>
 #include <vector>
 
+#include "daemon/client/column_map.hpp"
 #include "daemon/client/csv_table.hpp"
 #include "schema/text/csv_reader.hpp"
 
 namespace lphi::client {
 
-// Canonical column name -> the file's name for it.
-using ColumnMap = std::map<std::string, std::string>;
-
 // The canonical names, required ones first.
 const std::vector<std::string>& recording_columns();
 inline constexpr std::size_t recording_required_columns = 5;
 
-// Adds "canonical=file_name" to map. Error (naming the mapping) for a
-// malformed one, an unknown canonical name, or a name mapped twice.
+// Adds one --column argument ("canonical=file_name[:unit]", column_map.hpp)
+// to map. Error (naming the mapping) for a malformed one, an unknown
+// canonical name or unit, or a name mapped twice.
 Status add_column_mapping(const std::string& mapping, ColumnMap& map);
 
 // Unix times start here: 1e9 s is 2001-09-09, before any recording lphi reads.
@@ -76,6 +78,7 @@ class RecordingReader {
   // Per canonical column (recording_columns order): its index in the file.
   std::vector<std::optional<std::size_t>> index_;
   std::vector<std::string> file_names_;
+  ColumnMap map_;
   std::optional<double> previous_t_;
   std::optional<bool> unix_times_;
   std::vector<std::string> cells_;

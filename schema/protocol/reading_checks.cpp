@@ -132,17 +132,19 @@ std::optional<Refusal> read_fields(const json& reading, SourceKind kind, Fields&
       if (auto r = positive(Slot::time_constant_s, "time_constant_s")) return r;
       break;
     case SourceKind::thermometer: {
-      const double temperature_k = f.get(Slot::temperature_k);
-      if (!limits::temperature_in_range(temperature_k)) {
+      if (auto r = limits::temperature_refusal(f.get(Slot::temperature_k))) {
         return refuse(Reason::temperature_out_of_range,
-                      "temperature_k must lie between 0 and 1000 K");
+                      "temperature_k = " + r->with_hint() +
+                          (r->hint.empty() ? "" : " (temperature_k is in kelvin)"));
       }
       if (auto r = positive(Slot::resistance_ohm, "resistance_ohm")) return r;
       break;
     }
     case SourceKind::field:
-      if (!limits::field_in_range(f.get(Slot::field_t))) {
-        return refuse(Reason::field_out_of_range, "|field_t| must be below 50 T");
+      if (auto r = limits::field_refusal(f.get(Slot::field_t))) {
+        return refuse(Reason::field_out_of_range,
+                      "field_t = " + r->with_hint() +
+                          (r->hint.empty() ? "" : " (field_t is in tesla)"));
       }
       break;
   }

@@ -30,8 +30,8 @@ enum class Reason {
   bad_seq,                   // a sequence number that is negative or too large
   seq_not_increasing,        // sequence numbers within a batch must increase
   not_finite,                // NaN or infinity
-  temperature_out_of_range,  // temperature_k not in (0, 1000) K
-  field_out_of_range,        // |field_t| not below 50 T
+  temperature_out_of_range,  // temperature_k not in (0, 1000) K (limits.hpp)
+  field_out_of_range,        // |field_t| above 30 T (limits.hpp)
   value_out_of_range,        // another value outside its physical range
   time_out_of_range,         // t not positive, too far ahead of the clock or behind the source
   // Transient: the sender should try again later.

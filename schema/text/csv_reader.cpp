@@ -1,5 +1,6 @@
 #include "schema/text/csv_reader.hpp"
 
+#include <algorithm>
 #include <streambuf>
 #include <string_view>
 #include <unordered_map>
@@ -7,6 +8,33 @@
 #include "schema/text/text.hpp"
 
 namespace lphi::text {
+
+char foreign_delimiter(std::string_view line) {
+  char best = '\0';
+  std::size_t best_count = 0;
+  for (char d : {';', '\t', '|'}) {
+    std::size_t n = 0;
+    for (char c : line) n += c == d ? 1 : 0;
+    if (n > best_count) {
+      best = d;
+      best_count = n;
+    }
+  }
+  return best;
+}
+
+std::string delimiter_name(char delimiter) {
+  if (delimiter == '\t') return "tab";
+  return std::string("'") + delimiter + "'";
+}
+
+std::string CsvReader::delimiter_note(const std::vector<std::string>& cells) {
+  if (cells.size() != 1) return {};
+  const char d = foreign_delimiter(cells.front());
+  if (d == '\0') return {};
+  return " (the line looks " + delimiter_name(d) +
+         "-separated; lphi reads comma-separated files)";
+}
 
 CsvReader::CsvReader(std::istream& in, std::string source_name, std::size_t max_line_bytes)
     : in_(&in), source_name_(std::move(source_name)), max_line_bytes_(max_line_bytes) {}
@@ -121,6 +149,27 @@ Status CsvReader::read_header(std::vector<std::string>& header) {
     if (!status.ok()) return status;
     return Status::invalid_input(
         source_name_ + ": no header row (no header line: the file is empty or holds only comments)");
+  }
+  // A header of one name that another delimiter splits is a file in another
+  // dialect (a spreadsheet's ';' export, a tab-separated log): say so here
+  // rather than let the caller report a missing column.
+  if (header.size() == 1) {
+    if (const char d = foreign_delimiter(header.front()); d != '\0') {
+      std::string names;
+      std::size_t shown = 0, start = 0;
+      const std::string& line = header.front();
+      while (start <= line.size() && shown < 4) {
+        const std::size_t end = std::min(line.find(d, start), line.size());
+        names += (shown == 0 ? "" : ", ") + quote_cell(trim(std::string_view(line).substr(start, end - start)));
+        ++shown;
+        start = end + 1;
+      }
+      if (start <= line.size()) names += ", ...";
+      return Status::invalid_input(
+          at_line(record_line_) + " looks " + delimiter_name(d) + "-separated (" + names +
+          "); lphi reads comma-separated files: save the table with ',' between cells and '.' "
+          "as the decimal point");
+    }
   }
   std::unordered_map<std::string, std::size_t> seen;
   for (std::size_t i = 0; i < header.size(); ++i) {

@@ -15,7 +15,12 @@
 //   - errors are values (Status, invalid_input) that name the source, the
 //     line (1-based, counting every line as an editor does) and, for a
 //     lexical error, the column (1-based byte in the line);
-//   - the header (read_header) names every column once and none is empty.
+//   - the header (read_header) names every column once and none is empty;
+//   - a file separated by another delimiter is named as such: a header that
+//     is one cell holding ';', a tab or '|' is refused with "line 1 looks
+//     ';'-separated; lphi reads comma-separated files", and a data row of
+//     one such cell under a wider header gets the same note (delimiter_note),
+//     instead of a later "no column named ..." or a cell count.
 //
 // Thread safety: one reader belongs to one thread, like its istream.
 #pragma once
@@ -28,6 +33,13 @@
 #include "schema/status.hpp"
 
 namespace lphi::text {
+
+// The delimiter other than the comma that splits `line` most often: ';',
+// '\t' or '|', or '\0' when none occurs. What a header line in another
+// spreadsheet export looks like.
+char foreign_delimiter(std::string_view line);
+// "';'", "tab", "'|'": a delimiter as a message names it.
+std::string delimiter_name(char delimiter);
 
 class CsvReader {
  public:
@@ -45,6 +57,11 @@ class CsvReader {
   // The first record, checked as a header: every name non-empty and unique.
   // An input without any record is an error ("no header row").
   Status read_header(std::vector<std::string>& header);
+
+  // For a record of `cells` that does not fit the header: " (the line looks
+  // ';'-separated; lphi reads comma-separated files)" when it is one cell
+  // split by another delimiter, else empty. Append it to the message.
+  static std::string delimiter_note(const std::vector<std::string>& cells);
 
   // The line number of the record last returned (0 before the first).
   std::size_t line() const { return record_line_; }

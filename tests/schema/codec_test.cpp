@@ -1,9 +1,14 @@
 // The wire codec on its own: MessagePack and JSON must decode to the same
 // readings, and nlohmann's MessagePack output must match the MessagePack
 // specification's byte layout (github.com/msgpack/msgpack/blob/master/spec.md).
+#include <gmock/gmock.h>
 #include <gtest/gtest.h>
 
+#include <cmath>
+#include <sstream>
+
 #include "schema/protocol/codec.hpp"
+#include "schema/protocol/limits.hpp"
 
 namespace lphi::protocol {
 namespace {
@@ -81,6 +86,69 @@ TEST(Codec, AckRoundTrip) {
     EXPECT_EQ(reply.ack.rejected[0].reason, Reason::temperature_out_of_range);
     EXPECT_EQ(reply.ack.rejected[0].seq, 1226);
   }
+}
+
+}  // namespace
+}  // namespace lphi::protocol
+
+namespace lphi::protocol {
+namespace {
+
+// A bound as the refusal texts print it ("30", "1000").
+std::string fmt_bound(double v) {
+  std::ostringstream o;
+  o << v;
+  return o.str();
+}
+
+// One reading of `kind` through the reading checks; the refusal, if any.
+std::optional<RejectedReading> check_one(SourceKind kind, const nlohmann::json& reading) {
+  Readings got = empty_readings(kind);
+  std::vector<RejectedReading> rejected;
+  read_readings(nlohmann::json::array({reading}), kind, got, rejected);
+  if (rejected.empty()) return std::nullopt;
+  return rejected.front();
+}
+
+TEST(ReadingChecks, LimitsComeFromLimitsHppAndRefusalsCarryAUnitHint) {
+  using nlohmann::json;
+  using ::testing::HasSubstr;
+  const double b_max = limits::max_abs_field_t;
+  const double t_max = limits::max_temperature_k;
+  // The bound itself is accepted, anything beyond refused (either sign).
+  EXPECT_FALSE(check_one(SourceKind::field, {{"seq", 1}, {"t", 1.7e9}, {"field_t", b_max}}));
+  EXPECT_FALSE(check_one(SourceKind::field, {{"seq", 1}, {"t", 1.7e9}, {"field_t", -b_max}}));
+  for (double b : {std::nextafter(b_max, 100.0), -45.0, 45.0, 1e300}) {
+    const auto r = check_one(SourceKind::field, {{"seq", 1}, {"t", 1.7e9}, {"field_t", b}});
+    ASSERT_TRUE(r) << b;
+    EXPECT_EQ(r->reason, Reason::field_out_of_range);
+    EXPECT_THAT(r->detail, HasSubstr(fmt_bound(b_max) + " T lphi accepts in magnitude"));
+  }
+  // 45 read as mT is 0.045 T: the hint names mT and the converted value
+  // (1 mT = 1e-3 T, SI Brochure 9th ed., table 7).
+  auto r = check_one(SourceKind::field, {{"seq", 1}, {"t", 1.7e9}, {"field_t", 45.0}});
+  ASSERT_TRUE(r);
+  EXPECT_THAT(r->detail, HasSubstr("field_t = 45 T is beyond"));
+  EXPECT_THAT(r->detail, HasSubstr("is it in mT? 45 mT would be 0.045 T (field_t is in tesla)"));
+  // 45000 is beyond the bound in mT too (45 T), within it in gauss
+  // (1 G = 1e-4 T, SI Brochure 9th ed., section 4): the hint says G.
+  r = check_one(SourceKind::field, {{"seq", 1}, {"t", 1.7e9}, {"field_t", -45000.0}});
+  ASSERT_TRUE(r);
+  EXPECT_THAT(r->detail, HasSubstr("is it in G? -45000 G would be -4.5 T"));
+
+  EXPECT_FALSE(check_one(SourceKind::thermometer, {{"seq", 1}, {"t", 1.7e9}, {"temperature_k", 999.0}}));
+  r = check_one(SourceKind::thermometer, {{"seq", 1}, {"t", 1.7e9}, {"temperature_k", t_max}});
+  ASSERT_TRUE(r);
+  EXPECT_EQ(r->reason, Reason::temperature_out_of_range);
+  EXPECT_THAT(r->detail, HasSubstr("1000 K is outside (0, " + fmt_bound(t_max) + ") K"));
+  r = check_one(SourceKind::thermometer, {{"seq", 1}, {"t", 1.7e9}, {"temperature_k", 1500.0}});
+  ASSERT_TRUE(r);
+  EXPECT_THAT(r->detail, HasSubstr("is it in mK? 1500 mK would be 1.5 K (temperature_k is in kelvin)"));
+  // A negative temperature is no unit mistake: no hint.
+  r = check_one(SourceKind::thermometer, {{"seq", 1}, {"t", 1.7e9}, {"temperature_k", -0.5}});
+  ASSERT_TRUE(r);
+  EXPECT_THAT(r->detail, HasSubstr("-0.5 K is outside (0, "));
+  EXPECT_THAT(r->detail, ::testing::Not(HasSubstr("is it in")));
 }
 
 }  // namespace

@@ -100,5 +100,32 @@ TEST(CsvReader, HeaderNamesEveryColumnOnce) {
   EXPECT_THAT(header_error("\"a,b\",\"a,b\"\n"), HasSubstr("column 'a,b' twice"));
 }
 
+// A table in another dialect (a spreadsheet's semicolon export, a
+// tab-separated log) is named by the delimiter found in its header line and
+// the one lphi expects; a one-column header without one is still a header.
+TEST(CsvReader, AHeaderSplitByAnotherDelimiterIsNamed) {
+  auto header_error = [](const std::string& text) {
+    std::istringstream in(text);
+    CsvReader reader(in, "h.csv");
+    std::vector<std::string> header;
+    return reader.read_header(header).message();
+  };
+  EXPECT_EQ(header_error("field_t;rsq_ohm\n0,1;1000,5\n"),
+            "h.csv line 1 looks ';'-separated ('field_t', 'rsq_ohm'); lphi reads comma-separated "
+            "files: save the table with ',' between cells and '.' as the decimal point");
+  EXPECT_THAT(header_error("# exported\nfield_t\trsq_ohm\tr_ohm\n"),
+              HasSubstr("h.csv line 2 looks tab-separated ('field_t', 'rsq_ohm', 'r_ohm')"));
+  EXPECT_THAT(header_error("a|b|c|d|e|f\n"),
+              HasSubstr("line 1 looks '|'-separated ('a', 'b', 'c', 'd', ...)"));
+  // The most frequent foreign delimiter wins: three tabs against one ';'.
+  EXPECT_THAT(header_error("a;x\tb\tc\td\n"), HasSubstr("looks tab-separated"));
+  EXPECT_EQ(header_error("time_s\n"), "");
+  EXPECT_EQ(foreign_delimiter("a,b,c"), '\0');
+  EXPECT_EQ(CsvReader::delimiter_note({"1;2;3"}),
+            " (the line looks ';'-separated; lphi reads comma-separated files)");
+  EXPECT_EQ(CsvReader::delimiter_note({"1", "2"}), "");
+  EXPECT_EQ(CsvReader::delimiter_note({"12"}), "");
+}
+
 }  // namespace
 }  // namespace lphi::text

@@ -103,7 +103,9 @@ TEST(LiveCommands, BadInputIsRefusedBeforeAnythingIsSent) {
                                       "0.2,0.5,1e2,5e-3,5e-5\n");
   const auto r = lphi_cli({"replay", bad, "--sample", "film-a", "--fast", "--data-dir", d.data_dir});
   EXPECT_EQ(r.exit_code, 2) << r.err;
-  EXPECT_THAT(r.err, HasSubstr("bad.csv line 4, column 'field_t': 100 T is not below 50 T"));
+  EXPECT_THAT(r.err, HasSubstr("bad.csv line 4, column 'field_t': 100 T is beyond the 30 T lphi accepts in "
+                               "magnitude: is it in mT? 100 mT would be 0.1 T; map it with --column "
+                               "field_t=field_t:mT"));
   const auto status = d.process.status(5000ms);
   ASSERT_TRUE(status.has_value());
   EXPECT_EQ(status->at("counters").value("accepted", -1), 0) << status->dump();

@@ -1,6 +1,6 @@
 // The recorded-cooldown reader of `lphi replay` (daemon/client/recording_csv.hpp):
 // the format its header documents, and the limits lphid puts on a reading
-// (schema/protocol/reading_checks.cpp: T in (0, 1000) K, |B| < 50 T), checked before
+// (schema/protocol/limits.hpp: T in (0, 1000) K, |B| <= 30 T), checked before
 // anything is sent. Expected values are the cells written in each test.
 #include <gmock/gmock.h>
 #include <gtest/gtest.h>
@@ -101,7 +101,12 @@ TEST(RecordingCsv, ErrorsNameTheLineAndTheColumn) {
   // The limits lphid applies to every reading (protocol/reading_checks.cpp).
   EXPECT_THAT(scan_error(h + "0,0,0,1,0\n"), HasSubstr("line 2, column 'temperature_k': 0 K is outside (0, 1000) K"));
   EXPECT_THAT(scan_error(h + "0,-1,0,1,0\n"), HasSubstr("column 'temperature_k'"));
-  EXPECT_THAT(scan_error(h + "0,0.5,50,1,0\n"), HasSubstr("line 2, column 'field_t': 50 T is not below 50 T"));
+  EXPECT_THAT(scan_error(h + "0,0.5,50,1,0\n"),
+              HasSubstr("line 2, column 'field_t': 50 T is beyond the 30 T lphi accepts in magnitude: is it "
+                        "in mT? 50 mT would be 0.05 T; map it with --column field_t=field_t:mT"));
+  EXPECT_THAT(scan_error(h + "0,1500,0,1,0\n"),
+              HasSubstr("line 2, column 'temperature_k': 1500 K is outside (0, 1000) K: is it in mK? 1500 mK "
+                        "would be 1.5 K; map it with --column temperature_k=temperature_k:mK"));
   EXPECT_THAT(scan_error(h + "0,0.5,0,1,\n"), HasSubstr("line 2, column 'lockin_y_v': is empty while the other"));
   EXPECT_THAT(scan_error(h + "0,0.5,0,,1\n"), HasSubstr("line 2, column 'lockin_x_v': is empty while the other"));
   EXPECT_THAT(scan_error(h + "0,0.5,0,1\n"), HasSubstr("line 2: 4 cells, but the header has 5"));
