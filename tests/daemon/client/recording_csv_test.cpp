@@ -146,4 +146,59 @@ TEST(RecordingCsv, ColumnMappingRenamesAndIsNamedInErrors) {
   EXPECT_THAT(add_column_mapping("time_s=other", map).message(), HasSubstr("mapped twice"));
 }
 
+TEST(RecordingCsv, ColumnsInOtherUnitsAreReadInSi) {
+  // 1 mT = 1e-3 T, 1 mK = 1e-3 K, 1 uV = 1e-6 V, 1 ms = 1e-3 s (SI
+  // Brochure, 9th ed., table 7); 1 min = 60 s (table 8).
+  ColumnMap map;
+  ASSERT_TRUE(add_column_mapping("time_s=t:ms", map).ok());
+  ASSERT_TRUE(add_column_mapping("temperature_k=T:mK", map).ok());
+  ASSERT_TRUE(add_column_mapping("field_t=B:mT", map).ok());
+  ASSERT_TRUE(add_column_mapping("lockin_x_v=X:uV", map).ok());
+  ASSERT_TRUE(add_column_mapping("lockin_y_v:uV", map).ok());
+  ASSERT_TRUE(add_column_mapping("lockin_time_constant_s=tc:ms", map).ok());
+  std::istringstream in("t,T,B,X,lockin_y_v,tc\n0,25,-40,5,0.5,300\n1500,25.5,45,,,\n");
+  RecordingReader reader;
+  ASSERT_TRUE(reader.open(in, "rec.csv", map).ok());
+  RecordingRow row;
+  Status status;
+  ASSERT_TRUE(reader.next(row, status)) << status.message();
+  EXPECT_EQ(row.t_s, 0.0);
+  EXPECT_EQ(row.temperature_k, 25 * 1e-3);
+  EXPECT_EQ(row.field_t, -40 * 1e-3);
+  EXPECT_EQ(row.x_v, 5 * 1e-6);
+  EXPECT_EQ(row.y_v, 0.5 * 1e-6);
+  EXPECT_EQ(row.time_constant_s, 300 * 1e-3);
+  ASSERT_TRUE(reader.next(row, status)) << status.message();
+  EXPECT_EQ(row.t_s, 1500 * 1e-3);
+  EXPECT_EQ(row.field_t, 45 * 1e-3);  // 45 mT: within the limit once read in mT
+  EXPECT_FALSE(row.has_lockin);
+
+  ColumnMap minutes;
+  ASSERT_TRUE(add_column_mapping("time_s:min", minutes).ok());
+  RecordingSummary summary;
+  ASSERT_TRUE(scan(std::string(header) + "0,0.5,0,1,0\n2.5,0.5,0,1,0\n", summary, minutes).ok());
+  EXPECT_EQ(summary.last_t_s, 150.0);
+
+  // A value still beyond the limit in the stated unit says how it was read.
+  ColumnMap gauss;
+  ASSERT_TRUE(add_column_mapping("field_t=B:G", gauss).ok());
+  EXPECT_THAT(scan_error("time_s,temperature_k,B,lockin_x_v,lockin_y_v\n0,0.5,4e6,1,0\n", gauss),
+              HasSubstr("rec.csv line 2, column 'B' (field_t in G): 400 T is beyond the 30 T lphi accepts "
+                        "in magnitude (read as 4e+06 G)"));
+  EXPECT_THAT(add_column_mapping("field_t=B:K", gauss).message(), HasSubstr("'field_t' is mapped twice"));
+  ColumnMap wrong;
+  EXPECT_THAT(add_column_mapping("lockin_x_v=X:mT", wrong).message(),
+              HasSubstr("'mT' is a unit of field; lockin_x_v is a voltage: use V, mV, uV"));
+  EXPECT_THAT(add_column_mapping("lockin_overload=O:V", wrong).message(),
+              HasSubstr("'lockin_overload' has no unit to convert"));
+}
+
+TEST(RecordingCsv, ASemicolonRecordingSaysWhichDelimiterItFound) {
+  EXPECT_THAT(scan_error("time_s;temperature_k;field_t;lockin_x_v;lockin_y_v\n0;0,5;0;1;0\n"),
+              HasSubstr("rec.csv line 1 looks ';'-separated ('time_s', 'temperature_k', 'field_t', "
+                        "'lockin_x_v', ...); lphi reads comma-separated files"));
+  EXPECT_THAT(scan_error(std::string(header) + "0;0.5;0;1;0\n"),
+              HasSubstr("line 2: 1 cells, but the header has 5 (the line looks ';'-separated"));
+}
+
 }  // namespace

@@ -7,6 +7,7 @@
 #include <chrono>
 #include <cmath>
 #include <fstream>
+#include <iterator>
 #include <limits>
 #include <zmq.hpp>
 
@@ -111,6 +112,9 @@ std::vector<Case> hostile_cases() {
                    Reason::temperature_out_of_range),
       reading_case("field of 80 T", "magnet", {{"seq", 1}, {"t", now_s()}, {"field_t", -80.0}},
                    Reason::field_out_of_range),
+      // 45 mT written as tesla: beyond the 30 T of schema/protocol/limits.hpp.
+      reading_case("field of 45 T", "magnet", {{"seq", 1}, {"t", now_s()}, {"field_t", 45.0}},
+                   Reason::field_out_of_range),
       reading_case("negative seq", "lockin-a", with(good_lockin(1), "seq", -3), Reason::bad_seq),
       reading_case("seq beyond 2^53", "lockin-a", with(good_lockin(1), "seq", std::uint64_t{1} << 60), Reason::bad_seq),
       reading_case("seq as a string", "lockin-a", with(good_lockin(1), "seq", "7"), Reason::wrong_type),
@@ -206,6 +210,77 @@ TEST(HostileInput, EveryKindIsRefusedWithItsReasonCountedAndStoresNothing) {
     ASSERT_TRUE(reader.reading_count(s, count).ok());
     EXPECT_EQ(count, 0) << s.name;
   }
+}
+
+// One field reading of 45 "T" (a field in mT sent as tesla) in a batch with
+// a good one: the good one is stored, the bad one is refused in the ack with
+// the unit hint, counted under its reason in lphid's status, logged, and
+// absent from the database.
+TEST(HostileInput, AFieldOf45TeslaIsRefusedWithAUnitHintCountedLoggedAndNotStored) {
+  TempDir dir;
+  const std::string config = dir.file("lphid-test.toml");
+  std::ofstream(config) << test_config();
+  DaemonProcess daemon(dir.path(), config);
+  ASSERT_TRUE(daemon.start());
+
+  zmq::context_t context(1);
+  zmq::socket_t socket(context, zmq::socket_type::dealer);
+  socket.set(zmq::sockopt::linger, 0);
+  socket.connect(config::client_endpoints(dir.path()).ingest);
+  const double t0 = now_s();
+  const json b = batch("magnet", json::array({json{{"seq", 1}, {"t", t0}, {"field_t", 45.0}},
+                                              json{{"seq", 2}, {"t", t0 + 0.1}, {"field_t", 0.045}}}));
+  const std::string frame = msgpack(b);
+  socket.send(zmq::buffer(frame), zmq::send_flags::none);
+  zmq::pollitem_t item{socket.handle(), 0, ZMQ_POLLIN, 0};
+  zmq::poll(&item, 1, std::chrono::seconds(20));
+  zmq::message_t reply;
+  ASSERT_TRUE((item.revents & ZMQ_POLLIN) && socket.recv(reply, zmq::recv_flags::dontwait)) << "no reply";
+  json message;
+  protocol::Encoding encoding{};
+  protocol::Limits limits;
+  ASSERT_FALSE(protocol::decode_frame(reply.to_string_view(), limits, message, encoding));
+  protocol::Reply r;
+  ASSERT_FALSE(protocol::read_reply(message, r)) << message.dump();
+  ASSERT_EQ(r.type, protocol::ReplyType::ack) << message.dump();
+  EXPECT_EQ(r.ack.accepted, 1u);
+  ASSERT_EQ(r.ack.rejected.size(), 1u);
+  EXPECT_EQ(r.ack.rejected[0].reason, Reason::field_out_of_range);
+  EXPECT_EQ(r.ack.rejected[0].seq, std::optional<std::int64_t>(1));
+  EXPECT_NE(r.ack.rejected[0].detail.find("field_t = 45 T is beyond the 30 T lphi accepts in magnitude: "
+                                          "is it in mT? 45 mT would be 0.045 T"),
+            std::string::npos)
+      << r.ack.rejected[0].detail;
+
+  auto status = daemon.status(std::chrono::seconds(10));
+  ASSERT_TRUE(status.has_value());
+  EXPECT_EQ((*status)["counters"]["accepted"], 1);
+  EXPECT_EQ((*status)["counters"]["rejected_readings"].value("field_out_of_range", 0u), 1u) << status->dump();
+  EXPECT_EQ(daemon.stop(), 0);
+
+  std::ifstream log_file(dir.path() + "/lphid.log");
+  const std::string log((std::istreambuf_iterator<char>(log_file)), std::istreambuf_iterator<char>());
+  EXPECT_NE(log.find("source magnet: 1 of 2 readings refused, first: field_out_of_range"), std::string::npos)
+      << log;
+  EXPECT_NE(log.find("is it in mT?"), std::string::npos) << log;
+
+  store::StoreReader reader;
+  ASSERT_TRUE(store::StoreReader::open(store::database_path(dir.path()), reader).ok());
+  store::SourceRow magnet;
+  bool found = false;
+  ASSERT_TRUE(reader.find_source("magnet", magnet, found).ok());
+  ASSERT_TRUE(found);
+  std::vector<double> stored;
+  ASSERT_TRUE(reader
+                  .readings(magnet, store::all_time_from, store::all_time_to,
+                            [&](const protocol::Readings& chunk) {
+                              for (const auto& f : std::get<std::vector<protocol::FieldReading>>(chunk)) {
+                                stored.push_back(f.field_t);
+                              }
+                              return true;
+                            })
+                  .ok());
+  EXPECT_EQ(stored, (std::vector<double>{0.045}));
 }
 
 }  // namespace

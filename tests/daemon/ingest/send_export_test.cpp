@@ -4,6 +4,7 @@
 
 #include <cmath>
 #include <fstream>
+#include <iomanip>
 #include <sstream>
 #include <thread>
 
@@ -140,6 +141,55 @@ TEST(SendExport, CsvWithoutSeqGetsSeqAssignedAndRejectionsFailTheRun) {
   }
   EXPECT_EQ(n, 500);
   EXPECT_EQ(inst.daemon.stop(), 0);
+}
+
+// A magnet's field written in mT: `lphi send` refuses 45 "T" with the
+// unit it was likely in and the mapping that reads it, exits non-zero, and
+// sends nothing of that reading; with --column field_t=B:mT the same
+// numbers arrive as tesla (1 mT = 1e-3 T, SI Brochure, 9th ed., table 7).
+TEST(SendExport, AFieldInMilliteslaIsRefusedWithAUnitHintAndReadWithAColumnMapping) {
+  Instance inst;
+  ASSERT_TRUE(inst.daemon.start());
+  write_lines(inst.dir.file("mt.jsonl"), {json{{"t", 1.7e9 + 1.0}, {"field_t", 0.01}},
+                                          json{{"t", 1.7e9 + 2.0}, {"field_t", 45.0}},
+                                          json{{"t", 1.7e9 + 3.0}, {"field_t", -0.02}}});
+  auto r = inst.lphi({"send", "--source", "magnet", "--timeout", "60"}, inst.dir.file("mt.jsonl"));
+  EXPECT_EQ(r.exit_code, 1) << r.err;  // exit_failure: a reading was refused
+  EXPECT_NE(r.out.find("accepted 2, duplicates 0, rejected 1"), std::string::npos) << r.out;
+  EXPECT_NE(r.err.find("stdin line 2: field_out_of_range: field_t = 45 T is beyond the 30 T lphi accepts "
+                       "in magnitude: is it in mT? 45 mT would be 0.045 T (field_t is in tesla); map it "
+                       "with --column field_t=field_t:mT"),
+            std::string::npos)
+      << r.err;
+
+  {
+    std::ofstream out(inst.dir.file("mt.csv"));
+    out << "t,B\n" << std::setprecision(17);
+    for (int i = 0; i < 5; ++i) out << 1.7e9 + 10.0 + i << "," << -40.0 + 20.0 * i << "\n";
+  }
+  auto m = inst.lphi({"send", "--source", "magnet", "--format", "csv", "--column", "field_t=B:mT",
+                      "--timeout", "60"},
+                     inst.dir.file("mt.csv"));
+  EXPECT_EQ(m.exit_code, 0) << m.err;
+  EXPECT_NE(m.out.find("accepted 5, duplicates 0, rejected 0"), std::string::npos) << m.out;
+
+  auto bad_unit = inst.lphi({"send", "--source", "magnet", "--column", "field_t=B:kohm"},
+                            inst.dir.file("mt.csv"));
+  EXPECT_EQ(bad_unit.exit_code, 2) << bad_unit.err;
+  EXPECT_NE(bad_unit.err.find("'kohm' is a unit of resistance; field_t is a field: use T, mT, uT, G"),
+            std::string::npos)
+      << bad_unit.err;
+
+  auto e = inst.lphi({"export", "readings", "--source", "magnet", "--format", "jsonl"});
+  ASSERT_EQ(e.exit_code, 0) << e.err;
+  const auto got = parse_lines(e.out);
+  ASSERT_EQ(got.size(), 7u) << e.out;
+  EXPECT_EQ(got[0]["field_t"], 0.01);
+  EXPECT_EQ(got[1]["field_t"], -0.02);
+  for (int i = 0; i < 5; ++i) {
+    EXPECT_EQ(got[2 + i]["field_t"].get<double>(), (-40.0 + 20.0 * i) * 1e-3) << i;
+    EXPECT_LE(std::fabs(got[2 + i]["field_t"].get<double>()), 0.04 + 1e-15);
+  }
 }
 
 TEST(SendExport, SendWaitsForADaemonThatStartsLater) {
