@@ -14,6 +14,7 @@
 #include <future>
 #include <nlohmann/json.hpp>
 #include <set>
+#include <sstream>
 #include <string>
 #include <thread>
 
@@ -275,6 +276,66 @@ TEST(LiveCommands, ReplayIsDeterministicAcrossFreshDaemons) {
   EXPECT_EQ(fits[0], fits[1]);
   EXPECT_EQ(verdicts[0], verdicts[1]);
   EXPECT_EQ(sweeps[0], sweeps[1]);
+}
+
+// The recording written in lab units under other names (ms, mK, mT, mV;
+// SI Brochure, 9th ed., table 7), replayed with --column mappings, gives the
+// fits of the SI recording: the values differ by a rounding of the last bit
+// (printed with 17 digits, scaled back by a power of ten), so the fitted
+// L_phi agree to 1e-9 relative, far inside their errors.
+TEST(LiveCommands, ReplayOfARecordingInLabUnitsWithColumnMappingsGivesTheSiFits) {
+  lphi::testing::TempDir files;
+  const auto si_csv = recording_file(files);
+  std::string lab = "t_ms,T_mK,B_mT,X_mV,Y_mV,tc_ms\n";
+  {
+    std::istringstream in(lphi::testing::make_recording_csv(plan));
+    std::string line;
+    std::getline(in, line);
+    ASSERT_EQ(line, "time_s,temperature_k,field_t,lockin_x_v,lockin_y_v,lockin_time_constant_s");
+    std::ostringstream out;
+    out.precision(17);
+    while (std::getline(in, line)) {
+      std::istringstream cells(line);
+      std::string cell;
+      for (int c = 0; std::getline(cells, cell, ','); ++c) {
+        out << (c == 0 ? "" : ",");
+        if (!cell.empty()) out << std::stod(cell) * 1e3;
+      }
+      out << "\n";
+    }
+    lab += out.str();
+  }
+  const auto lab_csv = files.write("lab.csv", lab);
+  std::array<json, 2> fits;
+  for (int run = 0; run < 2; ++run) {
+    Daemon d;
+    ASSERT_TRUE(d.process.start());
+    std::vector<std::string> args = {"replay", run == 0 ? si_csv : lab_csv, "--sample", "film-a", "--fast",
+                                     "--start-unix", start_unix, "--data-dir", d.data_dir, "--stall-s", "60"};
+    if (run == 1) {
+      for (const char* m : {"time_s=t_ms:ms", "temperature_k=T_mK:mK", "field_t=B_mT:mT", "lockin_x_v=X_mV:mV",
+                            "lockin_y_v=Y_mV:mV", "lockin_time_constant_s=tc_ms:ms"}) {
+        args.insert(args.end(), {"--column", m});
+      }
+    }
+    const auto r = lphi_cli(args);
+    ASSERT_EQ(r.exit_code, 0) << r.out << r.err;
+    fits[run] = parsed(lphi_cli({"fits", "--json", "--data-dir", d.data_dir}));
+    EXPECT_EQ(d.process.stop(), 0);
+  }
+  ASSERT_TRUE(fits[0].is_array());
+  ASSERT_FALSE(fits[0].empty());
+  ASSERT_EQ(fits[0].size(), fits[1].size()) << fits[1].dump();
+  for (std::size_t k = 0; k < fits[0].size(); ++k) {
+    const auto& a = fits[0][k];
+    const auto& b = fits[1][k];
+    ASSERT_TRUE(a.contains("lphi_m") && b.contains("lphi_m")) << a.dump();
+    if (!a["lphi_m"].is_number()) {
+      EXPECT_EQ(a["lphi_m"], b["lphi_m"]);
+      continue;
+    }
+    EXPECT_NEAR(b["lphi_m"].get<double>(), a["lphi_m"].get<double>(), 1e-9 * a["lphi_m"].get<double>()) << k;
+  }
 }
 
 }  // namespace
