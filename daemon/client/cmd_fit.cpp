@@ -256,11 +256,11 @@ int run_fit(const FitRequest& rq, std::ostream& out, std::ostream& err) {
 
   // Optional columns: the time of each reading and the lock-in's time constant.
   std::vector<double> time_s, time_constant_s;
-  if (table.has_column("t_s")) {
-    if (auto s = table.numeric_column("t_s", time_s); !s.ok()) return fail(s.message());
+  if (has_mapped_column(table, columns, "t_s")) {
+    if (auto s = read_si_column(table, columns, "t_s", time_s); !s.ok()) return fail(s.message());
   }
-  if (table.has_column("time_constant_s")) {
-    if (auto s = table.numeric_column("time_constant_s", time_constant_s); !s.ok())
+  if (has_mapped_column(table, columns, "time_constant_s")) {
+    if (auto s = read_si_column(table, columns, "time_constant_s", time_constant_s); !s.ok())
       return fail(s.message());
   }
   std::vector<sweep::Reading> readings;

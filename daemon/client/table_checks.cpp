@@ -35,7 +35,8 @@ std::string rows_beyond(std::size_t n) {
 }  // namespace
 
 const std::vector<std::string>& fit_columns() {
-  static const std::vector<std::string> columns = {"field_t", "rsq_ohm", "r_ohm", "lockin_x_v"};
+  static const std::vector<std::string> columns = {"field_t",    "rsq_ohm", "r_ohm",
+                                                   "lockin_x_v", "t_s",     "time_constant_s"};
   return columns;
 }
 

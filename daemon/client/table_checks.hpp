@@ -28,7 +28,8 @@
 
 namespace lphi::client {
 
-// lphi's columns of a sweep table: field_t and one signal column.
+// lphi's columns of a sweep table: field_t, one signal column, and the
+// optional time of each reading and lock-in time constant.
 const std::vector<std::string>& fit_columns();
 // lphi's columns of an L_phi(T) table.
 const std::vector<std::string>& dephasing_columns();

@@ -118,7 +118,8 @@ TEST(ColumnMapParser, RefusalsNameTheProblemAndListWhatIsAccepted) {
               HasSubstr("'kohm' is a unit of resistance; field_t is a field: use T, mT, uT, G"));
   EXPECT_THAT(refusal("rsq_ohm=R:MT"), HasSubstr("unknown unit 'MT'; rsq_ohm is a resistance: use ohm, kohm, Mohm"));
   EXPECT_THAT(refusal("b_field=B:mT"),
-              HasSubstr("'b_field' is not a column of a sweep table (field_t, rsq_ohm, r_ohm, lockin_x_v)"));
+              HasSubstr("'b_field' is not a column of a sweep table (field_t, rsq_ohm, r_ohm, lockin_x_v, t_s, "
+                        "time_constant_s)"));
   EXPECT_THAT(refusal("field_t=B:"), HasSubstr("no unit after ':'"));
   EXPECT_THAT(refusal("field_t"), HasSubstr("expected COLUMN=NAME, COLUMN=NAME:UNIT or COLUMN:UNIT"));
   EXPECT_THAT(refusal("field_t="), HasSubstr("expected COLUMN=NAME"));

@@ -160,7 +160,7 @@ TEST(LphiUnits, UnknownUnitsAndColumnsAreRefusedListingTheAcceptedOnes) {
   expect_bad_input_units(lphi_units_run({"fit", "-", "--column", "rsq_ohm=R:mT"}, sweep),
                          {"'mT' is a unit of field; rsq_ohm is a resistance: use ohm, kohm, Mohm"});
   expect_bad_input_units(lphi_units_run({"fit", "-", "--column", "b=B:mT"}, sweep),
-                         {"'b' is not a column of a sweep table (field_t, rsq_ohm, r_ohm, lockin_x_v)"});
+                         {"'b' is not a column of a sweep table (field_t, rsq_ohm, r_ohm, lockin_x_v, t_s, time_constant_s)"});
   expect_bad_input_units(lphi_units_run({"dephasing", "-", "--column", "lphi_m=L:furlong"},
                                         "temperature_k,L,lphi_err_m\n"),
                          {"unknown unit 'furlong'; lphi_m is a length: use m, um, nm"});
