@@ -7,8 +7,8 @@
 #include <chrono>
 #include <cmath>
 #include <fstream>
-#include <iterator>
 #include <limits>
+#include <sstream>
 #include <zmq.hpp>
 
 #include "daemon/config/data_dir.hpp"
@@ -259,7 +259,9 @@ TEST(HostileInput, AFieldOf45TeslaIsRefusedWithAUnitHintCountedLoggedAndNotStore
   EXPECT_EQ(daemon.stop(), 0);
 
   std::ifstream log_file(dir.path() + "/lphid.log");
-  const std::string log((std::istreambuf_iterator<char>(log_file)), std::istreambuf_iterator<char>());
+  std::ostringstream log_text;
+  log_text << log_file.rdbuf();
+  const std::string log = log_text.str();
   EXPECT_NE(log.find("source magnet: 1 of 2 readings refused, first: field_out_of_range"), std::string::npos)
       << log;
   EXPECT_NE(log.find("is it in mT?"), std::string::npos) << log;
