@@ -1,6 +1,8 @@
 #include "analysis/alignment.hpp"
 
+#include <algorithm>
 #include <cmath>
+#include <vector>
 
 namespace lphi::align {
 
@@ -8,13 +10,58 @@ std::string validate(const AlignerOptions& o) {
   auto positive = [](double v) { return std::isfinite(v) && v > 0.0; };
   if (!positive(o.max_age_temperature_s))
     return "max_age_temperature_s must be finite and > 0";
-  if (!positive(o.max_age_field_s)) return "max_age_field_s must be finite and > 0";
+  if (o.max_age_field_s && !positive(*o.max_age_field_s))
+    return "max_age_field_s must be finite and > 0 (or unset: automatic)";
+  if (!positive(o.field_age_intervals)) return "field_age_intervals must be finite and > 0";
+  if (!positive(o.field_age_floor_s) || !positive(o.field_age_cap_s) ||
+      o.field_age_floor_s > o.field_age_cap_s)
+    return "field_age_floor_s and field_age_cap_s must be finite, > 0 and floor <= cap";
   if (!positive(o.max_hold_s) || o.max_hold_s < o.max_age_temperature_s ||
-      o.max_hold_s < o.max_age_field_s)
-    return "max_hold_s must be finite and at least both max ages";
+      o.max_hold_s < o.max_age_field_s.value_or(o.field_age_floor_s))
+    return "max_hold_s must be finite and at least both max ages (field_age_floor_s when automatic)";
   if (o.max_pending < 1) return "max_pending must be at least 1";
   if (o.max_buffered < 2) return "max_buffered must be at least 2 (one reading on each side)";
   return {};
+}
+
+double max_age_field_bound_s(const AlignerOptions& o) {
+  return o.max_age_field_s ? *o.max_age_field_s : std::min(o.field_age_cap_s, o.max_hold_s);
+}
+
+double FieldEstimates::median(const std::deque<double>& values) {
+  std::vector<double> v(values.begin(), values.end());
+  const auto mid = v.begin() + static_cast<std::ptrdiff_t>(v.size() / 2);
+  std::nth_element(v.begin(), mid, v.end());
+  return *mid;
+}
+
+void FieldEstimates::add(double t_s, double field_t) {
+  if (n_ >= 1 && !(t_s > t_[1])) return;  // a repeated time carries no interval
+  if (n_ >= 1) {
+    intervals_.push_back(t_s - t_[1]);
+    if (intervals_.size() > rolling_window) intervals_.pop_front();
+    interval_ = median(intervals_);
+  }
+  if (n_ >= 2) {
+    // The residual of the middle reading from the chord of its neighbours,
+    // normalised to the noise of one reading (see Field noise).
+    const double w = (t_[1] - t_[0]) / (t_s - t_[0]);
+    const double r = b_[1] - (b_[0] + (field_t - b_[0]) * w);
+    residuals_.push_back(std::abs(r) / std::sqrt(1.0 + w * w + (1.0 - w) * (1.0 - w)));
+    if (residuals_.size() > rolling_window) residuals_.pop_front();
+    if (residuals_.size() >= 8) noise_ = 1.4826 * median(residuals_);
+  }
+  t_[0] = t_[1];
+  b_[0] = b_[1];
+  t_[1] = t_s;
+  b_[1] = field_t;
+  ++n_;
+}
+
+double Aligner::field_age_limit_s(double median_interval_s) const {
+  if (options_.max_age_field_s) return *options_.max_age_field_s;
+  return std::clamp(options_.field_age_intervals * median_interval_s, options_.field_age_floor_s,
+                    max_age_field_bound_s(options_));
 }
 
 Aligner::Aligner(const AlignerOptions& options) : options_(options), error_(validate(options)) {}
@@ -49,7 +96,7 @@ void Aligner::push(const TemperatureReading& r, std::vector<AlignedPoint>& out) 
   }
   seen_temperature_ = true;
   last_temperature_t_ = r.t_s;
-  keep(temperature_, {r.t_s, r.temperature_k}, counts_.dropped_temperature);
+  keep(temperature_, {r.t_s, r.temperature_k, 0.0, 0.0}, counts_.dropped_temperature);
   release(out);
 }
 
@@ -64,7 +111,11 @@ void Aligner::push(const FieldReading& r, std::vector<AlignedPoint>& out) {
   }
   seen_field_ = true;
   last_field_t_ = r.t_s;
-  keep(field_, {r.t_s, r.field_t}, counts_.dropped_field);
+  field_estimates_.add(r.t_s, r.field_t);
+  field_stats_.median_interval_s = field_estimates_.median_interval_s();
+  field_stats_.age_limit_s = field_age_limit_s(field_stats_.median_interval_s);
+  field_stats_.noise_t = field_estimates_.noise_t();
+  keep(field_, {r.t_s, r.field_t, field_stats_.age_limit_s, field_stats_.noise_t}, counts_.dropped_field);
   release(out);
 }
 
@@ -117,6 +168,7 @@ Aligner::Lookup Aligner::interpolate(std::deque<Sample>& buffer, double t_s, dou
   Lookup found;
   if (buffer.empty() || buffer[0].t_s > t_s) return found;
   const Sample& a = buffer[0];
+  found.noise = a.noise;
   if (a.t_s == t_s) {
     found.ok = true;
     found.exact = true;
@@ -125,7 +177,8 @@ Aligner::Lookup Aligner::interpolate(std::deque<Sample>& buffer, double t_s, dou
   }
   if (buffer.size() < 2) return found;
   const Sample& b = buffer[1];
-  if (t_s - a.t_s > max_age_s || b.t_s - t_s > max_age_s) return found;
+  const double age_s = max_age_s >= 0.0 ? max_age_s : b.age_limit_s;
+  if (t_s - a.t_s > age_s || b.t_s - t_s > age_s) return found;
   found.ok = true;
   found.value = a.value + (b.value - a.value) * (t_s - a.t_s) / (b.t_s - a.t_s);
   return found;
@@ -135,7 +188,7 @@ void Aligner::decide_front(std::vector<AlignedPoint>& out) {
   const LockinReading r = pending_.front();
   pending_.pop_front();
   const Lookup temperature = interpolate(temperature_, r.t_s, options_.max_age_temperature_s);
-  const Lookup field = interpolate(field_, r.t_s, options_.max_age_field_s);
+  const Lookup field = interpolate(field_, r.t_s, -1.0);
   if (!temperature.ok || !field.ok) {
     ++counts_.unused;
     if (!temperature.ok) ++counts_.missing_temperature;
@@ -154,6 +207,7 @@ void Aligner::decide_front(std::vector<AlignedPoint>& out) {
   p.overload = r.overload;
   p.temperature_exact = temperature.exact;
   p.field_exact = field.exact;
+  p.field_noise_t = field.noise;
   out.push_back(p);
 }
 

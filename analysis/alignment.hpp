@@ -39,6 +39,31 @@
 // max age.) Outside those bounds readings are decided early and counted,
 // never silently changed.
 //
+// Field age, automatic. A magnet read once every few seconds would leave
+// every lock-in reading without a recent field reading under a fixed age
+// limit. Unless max_age_field_s is set, the limit for a lock-in reading at t
+// is field_age_intervals times the median interval between the last
+// rolling_window field readings up to the first one after t (the reading b
+// above; the upper middle interval for an even count), clamped to
+// [field_age_floor_s, min(field_age_cap_s, max_hold_s)]. It depends only on
+// the field stream, so it keeps the guarantee above; max_age_field_bound_s()
+// is the largest limit the options allow (for the callers' lag allowance).
+//
+// Field noise. Each field reading's deviation from the straight line through
+// its two neighbours, r_i = B_i - (B_(i-1) + (B_(i+1) - B_(i-1)) w),
+// w = (t_i - t_(i-1)) / (t_(i+1) - t_(i-1)), is a second difference: on a
+// linear ramp or a dwell it is noise alone, with variance
+// sigma^2 (1 + w^2 + (1 - w)^2) for independent readings of noise sigma. The
+// estimate is 1.4826 median|r_i| / sqrt(1 + w^2 + (1 - w)^2) over the last
+// rolling_window readings (the median absolute deviation scaled to a
+// Gaussian's sigma, common practice; a reversal or a change of ramp rate is
+// one outlier that the median ignores). Each AlignedPoint carries the
+// estimate as it stood at its field neighbour a (field_noise_t, 0 while fewer
+// than 8 residuals are known), a function of the field stream alone, so
+// that the segmenter can derive its reversal tolerance from the readings
+// rather than from the interpolated points, whose second differences vanish
+// between field readings.
+//
 // Buffers. Thermometer and field readings are kept only while a present or
 // future lock-in reading may need them (the last one at or before the oldest
 // undecided lock-in time, and everything after). Each buffer holds at most
@@ -60,6 +85,7 @@
 
 #include <cstddef>
 #include <deque>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -97,20 +123,33 @@ struct AlignedPoint {
   // A thermometer / field reading at exactly t was used, no interpolation:
   bool temperature_exact = false;
   bool field_exact = false;
+  double field_noise_t = 0.0;     // the field readings' noise sigma (see Field noise); 0 unknown
   bool operator==(const AlignedPoint&) const = default;
 };
 
 struct AlignerOptions {
   double max_age_temperature_s = 30.0;  // a bridge scanning channels is slow
-  double max_age_field_s = 2.0;         // the field moves during a sweep
+  // Unset: automatic, from the field readings' own interval (Field age).
+  std::optional<double> max_age_field_s;
+  double field_age_intervals = 5.0;     // automatic: this many median intervals
+  double field_age_floor_s = 2.0;       // ... at least (the fixed limit lphi used to have)
+  double field_age_cap_s = 30.0;        // ... at most
   double max_hold_s = 60.0;             // event-time lag tolerated between streams
   std::size_t max_pending = 100000;     // lock-in readings held at most
   std::size_t max_buffered = 100000;    // thermometer / field readings kept at most
 };
 
 // Empty when the options are usable, else what is wrong (ages finite and
-// > 0, hold finite and at least both ages, max_pending >= 1, max_buffered >= 2).
+// > 0, floor <= cap, hold finite and at least both ages (the floor when
+// automatic), max_pending >= 1, max_buffered >= 2).
 std::string validate(const AlignerOptions& options);
+
+// The largest field age the options allow: max_age_field_s when set, else
+// min(field_age_cap_s, max_hold_s).
+double max_age_field_bound_s(const AlignerOptions& options);
+
+// How many field readings the rolling estimates (interval, noise) look back.
+inline constexpr std::size_t rolling_window = 64;
 
 struct AlignmentCounts {
   std::size_t lockin_received = 0;
@@ -131,6 +170,33 @@ struct AlignmentCounts {
   bool operator==(const AlignmentCounts&) const = default;
 };
 
+// What the field stream looks like so far (for the reason a sample has no
+// sweeps): the latest rolling estimates, 0 before enough readings.
+struct FieldStreamStats {
+  double median_interval_s = 0.0;  // over the last rolling_window intervals
+  double age_limit_s = 0.0;        // the limit in force (automatic or set)
+  double noise_t = 0.0;            // see Field noise
+  bool operator==(const FieldStreamStats&) const = default;
+};
+
+// The rolling estimates of a field series (see Field age and Field noise):
+// the median interval between readings and the noise sigma from the
+// chord residuals, each over the last rolling_window values. O(window) per
+// reading. Feed it strictly increasing times. A plain value.
+class FieldEstimates {
+ public:
+  void add(double t_s, double field_t);
+  double median_interval_s() const { return interval_; }  // 0 before two readings
+  double noise_t() const { return noise_; }               // 0 before 8 residuals
+
+ private:
+  static double median(const std::deque<double>& values);
+  std::deque<double> intervals_, residuals_;
+  double t_[2] = {0.0, 0.0}, b_[2] = {0.0, 0.0};
+  std::size_t n_ = 0;
+  double interval_ = 0.0, noise_ = 0.0;
+};
+
 class Aligner {
  public:
   // Options must pass validate(); otherwise error() is set and every reading
@@ -147,6 +213,7 @@ class Aligner {
   void flush(std::vector<AlignedPoint>& out);
 
   const AlignmentCounts& counts() const { return counts_; }
+  const FieldStreamStats& field_stats() const { return field_stats_; }
   const std::string& error() const { return error_; }
   std::size_t pending() const { return pending_.size(); }
   std::size_t buffered_temperature() const { return temperature_.size(); }
@@ -156,21 +223,28 @@ class Aligner {
   struct Sample {
     double t_s;
     double value;
+    double age_limit_s = 0.0;  // field: the limit for times before this reading
+    double noise = 0.0;        // field: the noise estimate as of this reading
   };
   struct Lookup {
     bool ok = false;
     bool exact = false;
     double value = 0.0;
+    double noise = 0.0;
   };
+  double field_age_limit_s(double median_interval_s) const;
   void release(std::vector<AlignedPoint>& out);
   void decide_front(std::vector<AlignedPoint>& out);
   static void trim(std::deque<Sample>& buffer, double frontier_t_s);
+  // max_age_s < 0: the limit stored with the reading after t_s.
   static Lookup interpolate(std::deque<Sample>& buffer, double t_s, double max_age_s);
   void keep(std::deque<Sample>& buffer, Sample s, std::size_t& dropped);
 
   AlignerOptions options_;
   std::string error_;
   AlignmentCounts counts_;
+  FieldStreamStats field_stats_;
+  FieldEstimates field_estimates_;
   std::deque<LockinReading> pending_;
   std::deque<Sample> temperature_;
   std::deque<Sample> field_;

@@ -68,18 +68,39 @@ void PlateauDetector::close(std::vector<Plateau>& out) {
 
 std::string_view direction_name(Direction d) { return d == Direction::up ? "up" : "down"; }
 
+std::string_view sides_name(Sides s) {
+  switch (s) {
+    case Sides::two_sided: return "two-sided";
+    case Sides::positive: return "positive";
+    case Sides::negative: return "negative";
+  }
+  return "two-sided";
+}
+
 std::string validate(const SegmenterOptions& o) {
   auto finite_nonneg = [](double v) { return std::isfinite(v) && v >= 0.0; };
   if (!finite_nonneg(o.plateau.relative_spread))
     return "plateau.relative_spread must be finite and >= 0";
   if (!finite_nonneg(o.plateau.min_duration_s))
     return "plateau.min_duration_s must be finite and >= 0";
-  if (!std::isfinite(o.min_span_t) || o.min_span_t <= 0.0)
-    return "min_span_t must be finite and > 0";
-  if (!finite_nonneg(o.reversal_tolerance_t))
-    return "reversal_tolerance_t must be finite and >= 0";
-  if (o.reversal_tolerance_t >= o.min_span_t / 2.0)
+  auto positive = [](double v) { return std::isfinite(v) && v > 0.0; };
+  if (o.min_span_t && !positive(*o.min_span_t))
+    return "min_span_t must be finite and > 0 (or unset: automatic)";
+  if (o.reversal_tolerance_t && !finite_nonneg(*o.reversal_tolerance_t))
+    return "reversal_tolerance_t must be finite and >= 0 (or unset: automatic)";
+  if (o.min_span_t && o.reversal_tolerance_t && *o.reversal_tolerance_t >= *o.min_span_t / 2.0)
     return "reversal_tolerance_t must be below min_span_t / 2";
+  if (!positive(o.span_fraction) || o.span_fraction > 1.0)
+    return "span_fraction must be in (0, 1]";
+  if (o.span_recent_runs < 1) return "span_recent_runs must be at least 1";
+  if (!positive(o.span_floor_tolerances)) return "span_floor_tolerances must be finite and > 0";
+  if (!positive(o.tolerance_noise_factor)) return "tolerance_noise_factor must be finite and > 0";
+  if (!positive(o.tolerance_floor_t) || !positive(o.tolerance_cap_t) ||
+      o.tolerance_floor_t > o.tolerance_cap_t)
+    return "tolerance_floor_t and tolerance_cap_t must be finite, > 0 and floor <= cap";
+  if (o.min_points < 2) return "min_points must be at least 2";
+  if (!finite_nonneg(o.fast_return_density) || o.fast_return_density >= 1.0)
+    return "fast_return_density must be in [0, 1)";
   if (!finite_nonneg(o.field_step_t)) return "field_step_t must be finite and >= 0 (0 off)";
   if (!finite_nonneg(o.settling_time_constants))
     return "settling_time_constants must be finite and >= 0";
@@ -142,6 +163,7 @@ void SweepSegmenter::push(const align::AlignedPoint& p, SegmentOutput& out) {
   }
   previous_ = p;
   have_previous_ = true;
+  track_field(p);
 
   if (settling_ && p.t_s < settle_until_s_) {
     count_settling(settle_reason_);
@@ -150,11 +172,45 @@ void SweepSegmenter::push(const align::AlignedPoint& p, SegmentOutput& out) {
   add_to_run({p, plateaus_.run()}, out);
 }
 
+// The field's range, its noise and the tolerance in force, as of point p.
+void SweepSegmenter::track_field(const align::AlignedPoint& p) {
+  if (!seen_field_) {
+    diagnostics_.field_min_t = diagnostics_.field_max_t = p.field_t;
+    seen_field_ = true;
+  }
+  diagnostics_.field_min_t = std::min(diagnostics_.field_min_t, p.field_t);
+  diagnostics_.field_max_t = std::max(diagnostics_.field_max_t, p.field_t);
+  point_noise_.add(p.t_s, p.field_t);
+  const double sigma_t = std::max(p.field_noise_t, point_noise_.noise_t());
+  diagnostics_.field_noise_t = sigma_t;
+  tolerance_t_ = options_.reversal_tolerance_t
+                     ? *options_.reversal_tolerance_t
+                     : std::clamp(options_.tolerance_noise_factor * sigma_t, options_.tolerance_floor_t,
+                                  options_.tolerance_cap_t);
+  diagnostics_.tolerance_t = tolerance_t_;
+}
+
+// span/2 for a closed run that reached |B| = reach_t (see Span and
+// tolerance from the data).
+double SweepSegmenter::half_span_t(double reach_t) {
+  recent_reach_t_.push_back(reach_t);
+  while (recent_reach_t_.size() > options_.span_recent_runs) recent_reach_t_.pop_front();
+  double half = 0.0;
+  if (options_.min_span_t) {
+    half = *options_.min_span_t / 2.0;
+  } else {
+    const double largest = *std::max_element(recent_reach_t_.begin(), recent_reach_t_.end());
+    half = std::max(options_.span_fraction * largest, options_.span_floor_tolerances * tolerance_t_);
+  }
+  diagnostics_.half_span_t = half;
+  return half;
+}
+
 void SweepSegmenter::add_to_run(const Held& h, SegmentOutput& out) {
   if (run_.size() >= options_.max_points) close_run(run_.size(), true, out);
 
   const double b = h.point.field_t;
-  const double tol = options_.reversal_tolerance_t;
+  const double tol = tolerance_t_;
   if (run_.empty()) {
     run_.push_back(h);
     extreme_ = low_ = high_ = 0;
@@ -235,20 +291,24 @@ void SweepSegmenter::close_run(std::size_t end, bool truncated, SegmentOutput& o
 
 void SweepSegmenter::emit(std::size_t first, std::size_t last, RunDirection dir, bool truncated,
                           SegmentOutput& out) {
-  auto reject = [&] {
+  double reach_t = 0.0;
+  for (std::size_t i = first; i <= last; ++i) reach_t = std::max(reach_t, std::abs(run_[i].point.field_t));
+  const double half = half_span_t(reach_t);
+  auto reject = [&](std::size_t& reason) {
+    ++reason;
     if (truncated)
       ++counts_.truncated_discarded;
     else
       ++counts_.runs_short;
   };
   if (dir == RunDirection::unknown) {
-    reject();
+    reject(counts_.rejected.no_direction);
     return;
   }
   // Trim to the traverse between the dwell at each end. For a down run the
   // same holds with the field's sign reversed.
   const double sign = dir == RunDirection::up ? 1.0 : -1.0;
-  const double tol = options_.reversal_tolerance_t;
+  const double tol = tolerance_t_;
   auto f = [&](std::size_t i) { return sign * run_[i].point.field_t; };
   double lo = f(first), hi = f(first);
   for (std::size_t i = first; i <= last; ++i) {
@@ -270,18 +330,39 @@ void SweepSegmenter::emit(std::size_t first, std::size_t last, RunDirection dir,
   sw.direction = dir == RunDirection::up ? Direction::up : Direction::down;
   sw.field_min_t = run_[s].point.field_t;
   sw.field_max_t = sw.field_min_t;
-  TemperatureAccumulator acc;
   for (std::size_t i = s; i <= e; ++i) {
     const auto& p = run_[i].point;
     sw.field_min_t = std::min(sw.field_min_t, p.field_t);
     sw.field_max_t = std::max(sw.field_max_t, p.field_t);
   }
-  const double half = options_.min_span_t / 2.0;
-  if (!(sw.field_min_t <= -half && sw.field_max_t >= half)) {
-    reject();
+  if (!(sw.field_min_t <= tol && sw.field_max_t >= -tol)) {
+    reject(counts_.rejected.off_zero);
     return;
   }
-  sw.points.reserve(e - s + 1);
+  diagnostics_.largest_reach_t =
+      std::max(diagnostics_.largest_reach_t, std::max(-sw.field_min_t, sw.field_max_t));
+  const bool positive = sw.field_max_t >= half, negative = sw.field_min_t <= -half;
+  if (!positive && !negative) {
+    reject(counts_.rejected.below_span);
+    return;
+  }
+  sw.sides = positive && negative ? Sides::two_sided : positive ? Sides::positive : Sides::negative;
+  const std::size_t n = e - s + 1;
+  if (n < options_.min_points) {
+    reject(counts_.rejected.few_points);
+    return;
+  }
+  // Points per tesla: a return swept much faster than the last sweep is
+  // not one (a magnet that sweeps one way and returns fast).
+  const double density = static_cast<double>(n) / std::max(sw.field_max_t - sw.field_min_t, 1e-300);
+  if (last_sweep_density_ > 0.0 && density < options_.fast_return_density * last_sweep_density_) {
+    reject(counts_.rejected.fast_returns);
+    return;
+  }
+  last_sweep_density_ = density;
+
+  TemperatureAccumulator acc;
+  sw.points.reserve(n);
   for (std::size_t i = s; i <= e; ++i) {
     const auto& p = run_[i].point;
     sw.points.push_back(p);
@@ -292,6 +373,25 @@ void SweepSegmenter::emit(std::size_t first, std::size_t last, RunDirection dir,
   sw.t_start_s = run_[s].point.t_s;
   sw.t_end_s = run_[e].point.t_s;
   sw.temperature = acc.stats();
+  // The straight line T = mean + slope (t - t_mean), least squares.
+  {
+    double t_mean = 0.0;
+    for (const auto& p : sw.points) t_mean += p.t_s;
+    t_mean /= static_cast<double>(n);
+    double sxx = 0.0, sxy = 0.0;
+    for (const auto& p : sw.points) {
+      sxx += (p.t_s - t_mean) * (p.t_s - t_mean);
+      sxy += (p.t_s - t_mean) * (p.temperature_k - sw.temperature.mean_k);
+    }
+    const double slope = sxx > 0.0 ? sxy / sxx : 0.0;
+    sw.temperature_drift_k = slope * (sw.t_end_s - sw.t_start_s);
+    double ss = 0.0;
+    for (const auto& p : sw.points) {
+      const double r = p.temperature_k - sw.temperature.mean_k - slope * (p.t_s - t_mean);
+      ss += r * r;
+    }
+    sw.temperature_residual_k = n > 2 ? std::sqrt(ss / static_cast<double>(n - 2)) : 0.0;
+  }
   // Runs are numbered in time order, so first == last means one run. A
   // sweep across a run boundary whose own temperatures meet the plateau
   // criterion did not see a temperature change: the earlier run began on

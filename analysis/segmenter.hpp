@@ -15,18 +15,60 @@
 // grows like 2 sqrt(2 ln N) standard deviations: about 8 for N = 1e4).
 //
 // SweepSegmenter: a field sweep is a run of points in which B moves in one
-// direction, monotonic within reversal_tolerance_t (B may fall back by up to
-// that much, noise, without ending an up run), reaching from below
-// -min_span_t/2 to above +min_span_t/2. The run ends at a reversal (B more
-// than the tolerance behind the run's extreme); the points after the extreme
-// start the next run, in the other direction. A closed run is trimmed to its
-// traverse: from the last point within the tolerance of its starting
-// extreme to the first point within the tolerance of its final one, so that
-// a magnet dwelling at either end does not stretch the sweep over the dwell
-// (the dropped points are counted in dwell_points; a ramp also loses its
-// readings within the tolerance of each end, at most reversal_tolerance_t
-// of field, which a fit does not miss). A trimmed run covering
-// the span is emitted as a Sweep; others are counted and discarded.
+// direction, monotonic within the reversal tolerance (B may fall back by up
+// to that much, noise, without ending an up run). The run ends at a
+// reversal (B more than the tolerance behind the run's extreme); the points
+// after the extreme start the next run, in the other direction. A closed run
+// is trimmed to its traverse: from the last point within the tolerance of
+// its starting extreme to the first point within the tolerance of its final
+// one, so that a magnet dwelling at either end does not stretch the sweep
+// over the dwell (the dropped points are counted in dwell_points; a ramp
+// also loses its readings within the tolerance of each end, at most one
+// tolerance of field, which a fit does not miss).
+//
+// Which traverse is a sweep. It must pass through zero field (its lowest
+// field at most +tolerance and its highest at least -tolerance) and reach
+// half the span, span/2, on at least one side of zero. Reaching it on both
+// sides makes a two-sided sweep (Sides::two_sided, the symmetric sweep that
+// prepare_sweep symmetrizes); on one side only, a one-sided sweep
+// (Sides::positive or Sides::negative: a unipolar magnet, a sweep from 0 to
+// +B, or one that starts too close to zero on the other side to be
+// mirrored). It must also hold at least min_points points, and at least
+// fast_return_density times the points per tesla of the last sweep emitted:
+// a magnet that sweeps only up and returns fast makes a return run that
+// covers the field but holds a few points (counted as fast_returns, not
+// emitted). Every other closed run is counted by reason (RejectedRuns).
+//
+// Span and tolerance from the data. Unless set, both follow the readings, so
+// that sweeps from +-2 mT to +-1 T are found with field readings at any
+// rate (rules, each a function of the points in order: deterministic):
+//   tolerance = clamp(tolerance_noise_factor * sigma_B, tolerance_floor_t,
+//                     tolerance_cap_t)
+// with sigma_B the larger of the field readings' own noise as the Aligner
+// estimates it (AlignedPoint::field_noise_t) and the same chord-residual
+// estimate over the points' fields (align::FieldEstimates), as of the point
+// being segmented. A factor 10 keeps dwell noise from reversing a run: the
+// range of N Gaussian readings is about 2 sqrt(2 ln N) sigma, 8.6 sigma for
+// N = 1e4 (see PlateauDetector). The floor (1 uT) is far below the +-2 mT
+// sweeps a dilution fridge sees at its lowest temperatures, the cap (2 mT)
+// far below the +-1 T sweeps where such a noisy field occurs.
+//   span/2 = max(span_fraction * E, span_floor_tolerances * tolerance)
+// with E the largest |B| reached by the last span_recent_runs closed runs
+// (the one being judged included). A sweep then reaches at least a tenth of
+// the field the magnet has recently been taken to, so that a magnet parked
+// near zero, whose noise may form runs through zero, or a field step, does
+// not make sweeps, while sweeps of any size are found; the floor, five
+// tolerances (fifty noise sigma), keeps runs of noise out when the magnet
+// has not moved at all. An explicit min_span_t or reversal_tolerance_t
+// replaces its rule (the span and tolerance in force are in diagnostics()).
+//
+// Temperature drift. Each sweep carries the least-squares straight line of
+// T against t over its points: temperature_drift_k = slope * (t_end -
+// t_start), the change the line makes over the sweep, and
+// temperature_residual_k, the standard deviation of T about the line
+// (n - 2 degrees of freedom). A smooth drift is judged downstream by its
+// effect on L_phi; temperature_unstable below means only that the sweep
+// straddles a change between temperature runs.
 //
 // Temperature. A sweep whose points do not all lie in one temperature run
 // (a plateau boundary, or a spread above the criterion) and whose own
@@ -73,6 +115,8 @@
 #pragma once
 
 #include <cstddef>
+#include <deque>
+#include <optional>
 #include <span>
 #include <string>
 #include <string_view>
@@ -147,13 +191,20 @@ class PlateauDetector {
 enum class Direction { up, down };
 std::string_view direction_name(Direction d);  // "up", "down"
 
+// Which sides of zero field a sweep covers to span/2.
+enum class Sides { two_sided, positive, negative };
+std::string_view sides_name(Sides s);  // "two-sided", "positive", "negative"
+
 struct Sweep {
   std::size_t index = 0;             // 0, 1, 2, ... in the order emitted
   Direction direction = Direction::up;
   double t_start_s = 0.0, t_end_s = 0.0;
   double field_min_t = 0.0, field_max_t = 0.0;
+  Sides sides = Sides::two_sided;    // which sides of zero reach span/2
   std::vector<align::AlignedPoint> points;  // in time order
   TemperatureStats temperature;
+  double temperature_drift_k = 0.0;     // least-squares slope of T(t) times the duration
+  double temperature_residual_k = 0.0;  // scatter of T about that line
   std::size_t temperature_run = 0;   // run of its last point (see Temperature above)
   bool temperature_unstable = false; // straddles a temperature change
   bool truncated = false;            // closed at max_points
@@ -163,8 +214,17 @@ struct Sweep {
 
 struct SegmenterOptions {
   PlateauOptions plateau;
-  double min_span_t = 0.1;             // must reach below -span/2 and above +span/2
-  double reversal_tolerance_t = 1e-3;  // set above the field readings' noise
+  // Unset: automatic (see Span and tolerance from the data).
+  std::optional<double> min_span_t;            // a sweep reaches span/2 on one side at least
+  std::optional<double> reversal_tolerance_t;  // field noise that does not end a run
+  double span_fraction = 0.1;          // automatic span/2: this times the largest recent |B|
+  std::size_t span_recent_runs = 16;   // ... over this many closed runs
+  double span_floor_tolerances = 5.0;  // ... and at least this many tolerances
+  double tolerance_noise_factor = 10.0;  // automatic tolerance: this times sigma_B
+  double tolerance_floor_t = 1e-6;
+  double tolerance_cap_t = 2e-3;
+  std::size_t min_points = 20;         // a sweep holds at least this many points
+  double fast_return_density = 0.2;    // ... and this fraction of the last sweep's points per tesla
   double field_step_t = 0.0;           // step between consecutive points; 0 off
   double settling_time_constants = 5.0;  // 5 tau: a 6 dB/oct filter within 1%
   double settling_unknown_tau_s = 1.0;   // settle when tau is not reported
@@ -185,18 +245,41 @@ struct SettlingCounts {
   bool operator==(const SettlingCounts&) const = default;
 };
 
+// Closed runs that were not sweeps, by the first test they failed
+// (truncated ones included).
+struct RejectedRuns {
+  std::size_t no_direction = 0;   // the field never moved by more than the tolerance
+  std::size_t off_zero = 0;       // did not pass through zero field
+  std::size_t below_span = 0;     // passed through zero, reached span/2 on neither side
+  std::size_t few_points = 0;     // fewer than min_points points
+  std::size_t fast_returns = 0;   // below fast_return_density of the last sweep's points per tesla
+  std::size_t total() const { return no_direction + off_zero + below_span + few_points + fast_returns; }
+  bool operator==(const RejectedRuns&) const = default;
+};
+
 struct SegmentCounts {
   std::size_t points_received = 0;
   std::size_t refused = 0;             // non-finite, T <= 0, or out of order
   SettlingCounts settling;             // excluded, by reason
   std::size_t dwell_points = 0;        // trimmed from the ends of runs
-  std::size_t runs_short = 0;          // closed runs not covering the span
-  std::size_t truncated_discarded = 0; // runs at max_points not covering the span
+  std::size_t runs_short = 0;          // closed runs that were not sweeps (not truncated)
+  std::size_t truncated_discarded = 0; // runs closed at max_points that were not sweeps
+  RejectedRuns rejected;               // both of the above, by reason
   std::size_t sweeps = 0;
   std::size_t sweeps_temperature_unstable = 0;
   std::size_t sweeps_truncated = 0;
   std::size_t plateaus = 0;
   bool operator==(const SegmentCounts&) const = default;
+};
+
+// What the segmenter has seen (for the reason a sample has no sweeps).
+struct SegmentDiagnostics {
+  double tolerance_t = 0.0;         // the reversal tolerance in force
+  double half_span_t = 0.0;         // span/2 in force at the last closed run
+  double field_min_t = 0.0, field_max_t = 0.0;  // over every point taken (0, 0 before)
+  double largest_reach_t = 0.0;     // largest |B| of a closed run through zero
+  double field_noise_t = 0.0;       // sigma_B behind the automatic tolerance
+  bool operator==(const SegmentDiagnostics&) const = default;
 };
 
 struct SegmentOutput {
@@ -218,6 +301,7 @@ class SweepSegmenter {
   void finish(SegmentOutput& out);
 
   const SegmentCounts& counts() const { return counts_; }
+  const SegmentDiagnostics& diagnostics() const { return diagnostics_; }
   const std::string& error() const { return error_; }
   std::size_t buffered_points() const { return run_.size(); }
 
@@ -236,6 +320,15 @@ class SweepSegmenter {
   void close_run(std::size_t end, bool truncated, SegmentOutput& out);
   void emit(std::size_t first, std::size_t last, RunDirection dir, bool truncated,
             SegmentOutput& out);
+  void track_field(const align::AlignedPoint& p);
+  double half_span_t(double reach_t);
+
+  SegmentDiagnostics diagnostics_;
+  align::FieldEstimates point_noise_;
+  double tolerance_t_ = 0.0;
+  std::deque<double> recent_reach_t_;  // |B| reached by the last closed runs
+  double last_sweep_density_ = 0.0;    // points per tesla of the last sweep emitted
+  bool seen_field_ = false;
 
   SegmenterOptions options_;
   std::string error_;

@@ -214,6 +214,9 @@ int serve(const std::string& dir_option, const std::string& config_option, const
     if (const auto c = engine->counters(); !c.hook_failed.empty()) {
       st.failed_parts.push_back({"alert-hook", c.hook_failed, 0.0});
     }
+    for (const auto& sample : config.samples) {
+      if (const auto* w = live->find(sample.name)) st.samples.push_back(w->progress().counts);
+    }
     st.database_bytes = lphi::health::database_bytes(dir);
     st.pid = ::getpid();
     st.now_unix = std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();

@@ -14,6 +14,11 @@
 // seq sent of each source (wait_for_analysis). SIGINT stops the sending,
 // waits for the acknowledgements of what was sent and reports.
 //
+// Exit codes (exit_codes.hpp): 0 when the sample has sweeps once analysed;
+// exit_no_sweeps (5) when it has none, with lphid's reason on stderr
+// ("no sweeps for S: largest field excursion 20 mT, below the span
+// needed ..."); exit_failure when lphid rejected readings.
+//
 // Relative times are shifted to Unix times by --start-unix T (t_unix = T +
 // time_s); by default T is chosen so that the recording ends now, since
 // lphid refuses readings too far in its future.
@@ -381,6 +386,13 @@ int run_replay(const ReplayOptions& opt) {
   if (code != exit_ok) return code;
   std::cout << "lphid has analysed it: " << progress.value("sweeps", 0) << " sweeps and " << progress.value("fits", 0)
             << " fits stored for " << opt.sample << "\n";
+  // No sweeps is not a success: say why, with lphid's own reason.
+  if (progress.value("sweeps", 0) == 0) {
+    const auto& why = progress.contains("no_sweeps_reason") ? progress["no_sweeps_reason"] : json();
+    std::cerr << "lphi: no sweeps for " << opt.sample << ": "
+              << (why.is_string() ? why.get<std::string>() : std::string("lphid gave no reason")) << "\n";
+    return exit_no_sweeps;
+  }
   return rejected > 0 ? exit_failure : exit_ok;
 }
 

@@ -10,6 +10,8 @@
 #include <sstream>
 #include <toml++/toml.h>
 
+#include "analysis/alignment.hpp"
+
 namespace lphi::config {
 
 namespace {
@@ -391,10 +393,11 @@ std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
                           {"mean_free_path_m", c.optional_positive_to(s.mean_free_path_m)},
                           {"alpha_fixed", c.optional_number_to(s.alpha_fixed)},
                           {"max_age_temperature_s", c.positive_to(s.max_age_temperature_s)},
-                          {"max_age_field_s", c.positive_to(s.max_age_field_s)},
+                          {"max_age_field_s", c.optional_positive_to(s.max_age_field_s)},
                           {"max_hold_s", c.positive_to(s.max_hold_s)},
-                          {"sweep_min_span_t", c.positive_to(s.sweep_min_span_t)},
-                          {"reversal_tolerance_t", c.positive_to(s.reversal_tolerance_t)},
+                          {"sweep_min_span_t", c.optional_positive_to(s.sweep_min_span_t)},
+                          {"reversal_tolerance_t", c.optional_positive_to(s.reversal_tolerance_t)},
+                          {"sweep_min_points", c.integer_to(s.sweep_min_points, 2, 1000000)},
                           {"field_step_t", c.non_negative_to(s.field_step_t)},
                           {"plateau_relative_spread", c.positive_to(s.plateau_relative_spread)},
                           {"plateau_min_duration_s", c.non_negative_to(s.plateau_min_duration_s)},
@@ -407,9 +410,15 @@ std::vector<ConfigError> parse_config(std::string_view text, Config& out) {
                           {"excitation_ratio_max", c.positive_to(s.excitation_ratio_max)},
                           {"quadrature_ratio_max", c.positive_to(s.quadrature_ratio_max)},
                           {"new_cooldown_above_k", c.positive_to(s.new_cooldown_above_k)}});
-                 if (s.max_hold_s < std::max(s.max_age_temperature_s, s.max_age_field_s)) {
+                 if (s.max_hold_s < std::max(s.max_age_temperature_s,
+                                             s.max_age_field_s.value_or(align::AlignerOptions{}.field_age_floor_s))) {
                    c.errors.push_back({t.source().begin.line, p + ".max_hold_s",
                                        "must be at least max_age_temperature_s and max_age_field_s"});
+                 }
+                 if (s.sweep_min_span_t && s.reversal_tolerance_t &&
+                     *s.reversal_tolerance_t >= *s.sweep_min_span_t / 2.0) {
+                   c.errors.push_back({t.source().begin.line, p + ".reversal_tolerance_t",
+                                       "must be below sweep_min_span_t / 2"});
                  }
                  c.require(t, p,
                            {"name", "model", "squares", "width_m", "thickness_m", "excitation_a",

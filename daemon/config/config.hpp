@@ -51,10 +51,13 @@ struct SampleConfig {
   // Live analysis (defaults: those of the analysis option structs,
   // analysis/alignment.hpp and analysis/segmenter.hpp).
   double max_age_temperature_s = 30.0;   // aligning: newest thermometer reading at most this old
-  double max_age_field_s = 2.0;          // ... and field reading
-  double max_hold_s = 60.0;              // event-time lag tolerated between the three streams
-  double sweep_min_span_t = 0.1;         // a sweep reaches below -span/2 and above +span/2
-  double reversal_tolerance_t = 1e-3;    // field noise tolerated without ending a sweep
+  // Unset: automatic, from the data (analysis/alignment.hpp "Field age",
+  // analysis/segmenter.hpp "Span and tolerance from the data").
+  std::optional<double> max_age_field_s;       // ... and field reading
+  double max_hold_s = 60.0;                    // event-time lag tolerated between the three streams
+  std::optional<double> sweep_min_span_t;      // a sweep passes zero and reaches span/2 on one side
+  std::optional<double> reversal_tolerance_t;  // field noise tolerated without ending a sweep
+  std::int64_t sweep_min_points = 20;          // a sweep holds at least this many points
   double field_step_t = 0.0;             // a step this large between readings settles the lock-in; 0 off
   double plateau_relative_spread = 0.02; // (T_max - T_min)/T_mean within a plateau
   double plateau_min_duration_s = 300.0;

@@ -92,10 +92,16 @@ field = "magnet"
 # alpha_fixed = -0.5
 # Live analysis (these are the defaults):
 # max_age_temperature_s = 30.0   # a lock-in reading needs a thermometer reading this recent on each side
-# max_age_field_s = 2.0          # ... and a field reading
 # max_hold_s = 60.0              # how far the three streams may lag each other in time
-# sweep_min_span_t = 0.1         # a sweep reaches below -span/2 and above +span/2 tesla
-# reversal_tolerance_t = 1e-3    # field noise that does not end a sweep
+# sweep_min_points = 20          # a sweep holds at least this many lock-in readings
+# Automatic unless set (lphi status shows the values in force, per sample):
+# max_age_field_s = 2.0          # ... and a field reading. Automatic: 5 times the median interval
+#                                # between field readings, at least 2 s, at most 30 s
+# sweep_min_span_t = 0.01        # a sweep passes through zero field and reaches span/2 on at
+#                                # least one side (two-sided or one-sided). Automatic: span/2 is a
+#                                # tenth of the largest |B| of the last 16 runs, at least 5 tolerances
+# reversal_tolerance_t = 1e-5    # field noise that does not end a sweep. Automatic: 10 times the
+#                                # field readings' noise, at least 1 uT, at most 2 mT
 # field_step_t = 0.0             # a field step this large settles the lock-in again; 0: off
 # plateau_relative_spread = 0.02 # (T_max - T_min)/T_mean within one temperature plateau
 # plateau_min_duration_s = 300.0

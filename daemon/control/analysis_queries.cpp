@@ -142,6 +142,10 @@ json AnalysisQueries::progress_reply(const json& request) {
   // aligner tolerates): the analysis resumes when it catches up.
   reply["waiting_for"] = p.waiting_for >= 0 ? json(w->source_name(p.waiting_for)) : json(nullptr);
   if (!p.error.empty()) reply["error"] = p.error;
+  // What was dropped, by reason, and why there are no sweeps (if so).
+  const json counts = health::sample_counts_json(p.counts);
+  reply["dropped"] = counts["dropped"];
+  reply["no_sweeps_reason"] = counts["no_sweeps_reason"];
   return reply;
 }
 

@@ -66,6 +66,8 @@ json failed_parts_json(const std::vector<FailedPart>& parts) {
 json status_reply(const DaemonStatus& s) {
   json sources = json::array();
   for (const auto& src : s.ingest.sources) sources.push_back(source_json(src, s.now_unix));
+  json samples = json::array();
+  for (const auto& c : s.samples) samples.push_back(sample_counts_json(c));
   return {{"type", "status"},
           {"pid", s.pid},
           {"uptime_s", s.now_unix - s.ingest.started_unix},
@@ -74,7 +76,8 @@ json status_reply(const DaemonStatus& s) {
           {"writer", writer_json(s.ingest.writer, s.ingest.backpressure)},
           {"sources", std::move(sources)},
           {"drivers", s.drivers},
-          {"failed_parts", failed_parts_json(s.failed_parts)}};
+          {"failed_parts", failed_parts_json(s.failed_parts)},
+          {"samples", std::move(samples)}};
 }
 
 std::int64_t database_bytes(const std::string& data_dir) {

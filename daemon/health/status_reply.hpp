@@ -1,7 +1,7 @@
 // status_reply: the one place that makes the control socket's
 // {"type":"status"} reply (daemon/PROTOCOL.md) from lphid's typed state:
-// the ingest server's IngestStatus, the instrument drivers' status and the
-// parts that failed. A pure function of its inputs; any thread.
+// the ingest server's IngestStatus, the instrument drivers' status, the
+// parts that failed and each sample's analysis counts (sample_counts.hpp). A pure function of its inputs; any thread.
 #pragma once
 
 #include <cstdint>
@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "daemon/health/failed_parts.hpp"
+#include "daemon/health/sample_counts.hpp"
 #include "daemon/ingest/ingest_status.hpp"
 
 namespace lphi::health {
@@ -17,6 +18,7 @@ struct DaemonStatus {
   ingest::IngestStatus ingest;
   nlohmann::json drivers = nlohmann::json::array();  // DriverHost::status_json()
   std::vector<FailedPart> failed_parts;
+  std::vector<SampleCounts> samples;  // each sample's drops by reason
   std::int64_t database_bytes = 0;  // the database file and its WAL
   std::int64_t pid = 0;
   double now_unix = 0.0;

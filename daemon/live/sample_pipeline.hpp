@@ -226,6 +226,9 @@ class SamplePipeline {
   std::size_t sweeps_seen() const { return sweeps_seen_; }
   std::size_t fits_done() const { return fits_.size(); }
   std::size_t fits_reused() const { return fits_reused_; }
+  // Their counts and diagnostics (what was dropped, by reason, for status).
+  const align::Aligner& aligner() const { return aligner_; }
+  const segment::SweepSegmenter& segmenter() const { return segmenter_; }
 
  private:
   void take(std::vector<align::AlignedPoint>& points);

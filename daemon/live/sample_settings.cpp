@@ -23,6 +23,7 @@ SampleSettings sample_settings(const config::SampleConfig& c) {
   s.aligner.max_hold_s = c.max_hold_s;
   s.segmenter.min_span_t = c.sweep_min_span_t;
   s.segmenter.reversal_tolerance_t = c.reversal_tolerance_t;
+  s.segmenter.min_points = static_cast<std::size_t>(c.sweep_min_points);
   s.segmenter.field_step_t = c.field_step_t;
   s.segmenter.plateau.relative_spread = c.plateau_relative_spread;
   s.segmenter.plateau.min_duration_s = c.plateau_min_duration_s;

@@ -1,5 +1,6 @@
 #include "daemon/live/sample_worker.hpp"
 
+#include <chrono>
 #include <algorithm>
 #include <cstdlib>
 #include <future>
@@ -58,7 +59,7 @@ Status SampleWorker::create(const config::SampleConfig& sample, const LiveOption
                  sample.name, stored.sweep_ids.size(), stored.fits.size());
   }
   const double lag_allowance_s = settings.aligner.max_hold_s - std::max(settings.aligner.max_age_temperature_s,
-                                                                        settings.aligner.max_age_field_s);
+                                                                        align::max_age_field_bound_s(settings.aligner));
   if (auto s = w->merger_.open(path, w->source_id_, w->source_name_, sample.name, options.chunk_readings,
                                lag_allowance_s);
       !s) {
@@ -195,7 +196,20 @@ Status SampleWorker::store_records(const PipelineOutput& out) {
 }
 
 void SampleWorker::set_progress(bool busy) {
+  health::SampleCounts counts;
+  counts.sample = config_.name;
+  counts.alignment = pipeline_->aligner().counts();
+  counts.field = pipeline_->aligner().field_stats();
+  counts.segmentation = pipeline_->segmenter().counts();
+  counts.diagnostics = pipeline_->segmenter().diagnostics();
+  counts.field_age_set = config_.max_age_field_s.has_value();
+  counts.span_set = config_.sweep_min_span_t.has_value();
+  counts.tolerance_set = config_.reversal_tolerance_t.has_value();
+  // Wall time: the log is for the operator, not part of the analysis.
+  const double now_s = std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
+  for (const auto& line : drop_log_.update(counts, now_s)) spdlog::info("{}", line);
   std::lock_guard lock(mutex_);
+  progress_.counts = std::move(counts);
   for (int k = 0; k < 3; ++k) progress_.analysed_seq[k] = merger_.cursor(k);
   progress_.busy = busy;
   progress_.waiting_for = merger_.waiting_for();

@@ -34,6 +34,7 @@
 #include <thread>
 
 #include "daemon/config/config.hpp"
+#include "daemon/health/sample_counts.hpp"
 #include "daemon/live/record_publisher.hpp"
 #include "daemon/live/sample_pipeline.hpp"
 #include "daemon/live/stream_merger.hpp"
@@ -67,6 +68,7 @@ struct SampleProgress {
   int waiting_for = -1;  // the stream the others wait for, -1 none
   std::size_t sweeps = 0, fits = 0, fits_reused = 0;
   std::string error;     // set when the analysis stopped
+  health::SampleCounts counts;  // dropped by reason, and why no sweeps
 };
 
 class SampleWorker {
@@ -114,6 +116,7 @@ class SampleWorker {
   std::unique_ptr<RecordPublisher> publisher_;
   std::map<std::int64_t, std::int64_t> sweep_ids_;  // sweep index -> sweeps.id
 
+  health::DropLog drop_log_;   // the worker thread's own
   mutable std::mutex mutex_;  // guards progress_, wake_
   std::condition_variable wake_;
   SampleProgress progress_;

@@ -13,6 +13,7 @@
 #include <limits>
 #include <random>
 #include <variant>
+#include <type_traits>
 #include <vector>
 
 #include "analysis/alignment.hpp"
@@ -117,8 +118,8 @@ double uniform(std::mt19937_64& g) { return static_cast<double>(g() >> 11) * 0x1
 
 // 20 Hz lock-in over 300 s; thermometer every ~7 s with an 84 s gap (98 ->
 // 182 s) that no reading can bridge at max age 30 s; field every ~0.5 s
-// with a 6 s gap (240 -> 246 s) at max age 2 s. Times jittered so that the
-// streams never share a grid.
+// with a 6 s gap (240 -> 246 s) at the automatic max age (about 2.5 s).
+// Times jittered so that the streams never share a grid.
 Streams make_streams(std::uint64_t seed) {
   std::mt19937_64 g(seed);
   Streams s;
@@ -137,12 +138,27 @@ Streams make_streams(std::uint64_t seed) {
   return s;
 }
 
-// The definition, searched directly.
+// The automatic field age limit for times before field reading b, from its
+// definition (alignment.hpp, "Field age"): 5 times the median of the last 64
+// intervals up to reading b (the upper middle one for an even count),
+// clamped to [2 s, 30 s].
+double automatic_field_age_s(const std::vector<FieldReading>& rs, std::size_t b) {
+  std::vector<double> intervals;
+  for (std::size_t i = b >= 64 ? b - 63 : 1; i <= b; ++i) intervals.push_back(rs[i].t_s - rs[i - 1].t_s);
+  std::sort(intervals.begin(), intervals.end());
+  return std::clamp(5.0 * intervals[intervals.size() / 2], 2.0, 30.0);
+}
+
+// The definition, searched directly. max_age < 0: the automatic field age.
 template <class R>
 bool neighbour_value(const std::vector<R>& rs, double t, double max_age, double R::*value,
                      double& v) {
   auto after = std::upper_bound(rs.begin(), rs.end(), t,
                                 [](double x, const R& r) { return x < r.t_s; });
+  if constexpr (std::is_same_v<R, FieldReading>) {
+    if (max_age < 0.0 && after != rs.end() && after != rs.begin())
+      max_age = automatic_field_age_s(rs, static_cast<std::size_t>(after - rs.begin()));
+  }
   if (after == rs.begin()) return false;
   const R& a = *(after - 1);
   if (a.t_s == t) {
@@ -163,7 +179,7 @@ std::vector<AlignedPoint> reference(const Streams& s, const AlignerOptions& o) {
     if (!neighbour_value(s.temperature, r.t_s, o.max_age_temperature_s,
                          &TemperatureReading::temperature_k, temperature))
       continue;
-    if (!neighbour_value(s.field, r.t_s, o.max_age_field_s, &FieldReading::field_t, field))
+    if (!neighbour_value(s.field, r.t_s, o.max_age_field_s.value_or(-1.0), &FieldReading::field_t, field))
       continue;
     AlignedPoint p;
     p.t_s = r.t_s;
