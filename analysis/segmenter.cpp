@@ -257,8 +257,10 @@ void SweepSegmenter::reverse(const Held& h, SegmentOutput& out) {
   const RunDirection next =
       direction_ == RunDirection::up ? RunDirection::down : RunDirection::up;
   const double turn_t = run_[extreme_].point.t_s;
+  const double turn_field_t = run_[extreme_].point.field_t;
   close_run(extreme_ + 1, false, out);
   direction_ = next;
+  run_origin_t_ = turn_field_t;
 
   const double until = turn_t + settle_s(h.point);
   start_settling(until, SettleReason::field_reversal);
@@ -283,6 +285,7 @@ void SweepSegmenter::reverse(const Held& h, SegmentOutput& out) {
 void SweepSegmenter::close_run(std::size_t end, bool truncated, SegmentOutput& out) {
   if (end > 0) emit(0, end - 1, direction_, truncated, out);
   run_.erase(run_.begin(), run_.begin() + static_cast<std::ptrdiff_t>(end));
+  run_origin_t_.reset();
   if (truncated) {
     direction_ = RunDirection::unknown;
     extreme_ = low_ = high_ = 0;
@@ -335,7 +338,17 @@ void SweepSegmenter::emit(std::size_t first, std::size_t last, RunDirection dir,
     sw.field_min_t = std::min(sw.field_min_t, p.field_t);
     sw.field_max_t = std::max(sw.field_max_t, p.field_t);
   }
-  if (!(sw.field_min_t <= tol && sw.field_max_t >= -tol)) {
+  // Through zero: judged on the whole run, since the traverse starts at the
+  // last point within the tolerance of its starting extreme, up to one
+  // tolerance away from a start at zero.
+  double run_min_t = sign > 0 ? lo : -hi, run_max_t = sign > 0 ? hi : -lo;
+  if (run_origin_t_) {
+    // A run begun at a reversal starts at the turn, though the points
+    // settling after it are gone (a unipolar magnet turning at zero).
+    run_min_t = std::min(run_min_t, *run_origin_t_);
+    run_max_t = std::max(run_max_t, *run_origin_t_);
+  }
+  if (!(run_min_t <= tol && run_max_t >= -tol)) {
     reject(counts_.rejected.off_zero);
     return;
   }
@@ -369,7 +382,6 @@ void SweepSegmenter::emit(std::size_t first, std::size_t last, RunDirection dir,
     acc.add(p.temperature_k);
     if (p.overload) ++sw.n_overload;
   }
-  sw.index = next_sweep_index_++;
   sw.t_start_s = run_[s].point.t_s;
   sw.t_end_s = run_[e].point.t_s;
   sw.temperature = acc.stats();
@@ -403,14 +415,45 @@ void SweepSegmenter::emit(std::size_t first, std::size_t last, RunDirection dir,
                              options_.plateau.relative_spread * sw.temperature.mean_k;
   sw.temperature_unstable = !one_run && !within_spread;
   sw.truncated = truncated;
+  // One-sided legs next to a two-sided sweep are the magnet's approach to
+  // or return from it (see One-sided legs); a one-sided traverse waits for
+  // the next to tell.
+  const bool follows_two_sided = last_sides_ && *last_sides_ == Sides::two_sided;
+  last_sides_ = sw.sides;
+  if (sw.sides == Sides::two_sided) {
+    if (pending_) {
+      pending_.reset();
+      ++counts_.rejected.approach_legs;
+      ++counts_.runs_short;
+    }
+    deliver(std::move(sw), out);
+    return;
+  }
+  if (follows_two_sided) {
+    ++counts_.rejected.approach_legs;
+    if (truncated)
+      ++counts_.truncated_discarded;
+    else
+      ++counts_.runs_short;
+    return;
+  }
+  if (pending_) deliver(std::move(*pending_), out);
+  pending_ = std::move(sw);
+}
+
+void SweepSegmenter::deliver(Sweep&& sw, SegmentOutput& out) {
+  sw.index = next_sweep_index_++;
   ++counts_.sweeps;
   if (sw.temperature_unstable) ++counts_.sweeps_temperature_unstable;
-  if (truncated) ++counts_.sweeps_truncated;
+  if (sw.truncated) ++counts_.sweeps_truncated;
   out.sweeps.push_back(std::move(sw));
 }
 
 void SweepSegmenter::finish(SegmentOutput& out) {
   if (!run_.empty()) close_run(run_.size(), false, out);
+  run_origin_t_.reset();
+  if (pending_) deliver(std::move(*pending_), out);
+  pending_.reset();
   direction_ = RunDirection::unknown;
   extreme_ = low_ = high_ = 0;
   const std::size_t before = out.plateaus.size();

@@ -27,7 +27,9 @@
 // tolerance of field, which a fit does not miss).
 //
 // Which traverse is a sweep. It must pass through zero field (its lowest
-// field at most +tolerance and its highest at least -tolerance) and reach
+// field at most +tolerance and its highest at least -tolerance, over the
+// whole run, dwells included, and from the field at the reversal that began
+// it: the points settling after a turn at zero are dropped) and reach
 // half the span, span/2, on at least one side of zero. Reaching it on both
 // sides makes a two-sided sweep (Sides::two_sided, the symmetric sweep that
 // prepare_sweep symmetrizes); on one side only, a one-sided sweep
@@ -39,6 +41,16 @@
 // covers the field but holds a few points (counted as fast_returns, not
 // emitted). Every other closed run is counted by reason (RejectedRuns).
 //
+// One-sided legs. A magnet that sweeps both ways goes from zero to -B_max
+// before its first sweep and back to zero after its last: one-sided
+// traverses that are the approach to and the return from a two-sided
+// sweep, not sweeps of their own (a second, half copy of the same data).
+// So a one-sided traverse right after a two-sided one (the return), and one
+// right before a two-sided one (the approach), are counted as approach_legs
+// and not emitted; one-sided traverses between one-sided ones (a unipolar
+// or one-way magnet) are. A one-sided traverse therefore waits until the
+// next traverse qualifies (or finish()) before it is emitted.
+//
 // Span and tolerance from the data. Unless set, both follow the readings, so
 // that sweeps from +-2 mT to +-1 T are found with field readings at any
 // rate (rules, each a function of the points in order: deterministic):
@@ -47,18 +59,21 @@
 // with sigma_B the larger of the field readings' own noise as the Aligner
 // estimates it (AlignedPoint::field_noise_t) and the same chord-residual
 // estimate over the points' fields (align::FieldEstimates), as of the point
-// being segmented. A factor 10 keeps dwell noise from reversing a run: the
-// range of N Gaussian readings is about 2 sqrt(2 ln N) sigma, 8.6 sigma for
-// N = 1e4 (see PlateauDetector). The floor (1 uT) is far below the +-2 mT
-// sweeps a dilution fridge sees at its lowest temperatures, the cap (2 mT)
-// far below the +-1 T sweeps where such a noisy field occurs.
+// being segmented. A factor 20: the range of N Gaussian readings is about
+// 2 sqrt(2 ln N) sigma, 8.6 sigma for N = 1e4, and a magnet's field noise is
+// not white (a power supply's drift and ripple are correlated over
+// readings, which the chord residuals see only in part: lphi-sim's magnet,
+// with 2 uT of noise, gives sigma_B = 1.5 uT and falls of 16 uT within
+// its +-2 mT sweeps). The floor (1 uT) is far below the +-2 mT sweeps a
+// dilution fridge sees at its lowest temperatures, the cap (2 mT) far below
+// the +-1 T sweeps where such a noisy field occurs.
 //   span/2 = max(span_fraction * E, span_floor_tolerances * tolerance)
 // with E the largest |B| reached by the last span_recent_runs closed runs
 // (the one being judged included). A sweep then reaches at least a tenth of
 // the field the magnet has recently been taken to, so that a magnet parked
 // near zero, whose noise may form runs through zero, or a field step, does
 // not make sweeps, while sweeps of any size are found; the floor, five
-// tolerances (fifty noise sigma), keeps runs of noise out when the magnet
+// tolerances (a hundred noise sigma), keeps runs of noise out when the magnet
 // has not moved at all. An explicit min_span_t or reversal_tolerance_t
 // replaces its rule (the span and tolerance in force are in diagnostics()).
 //
@@ -220,7 +235,7 @@ struct SegmenterOptions {
   double span_fraction = 0.1;          // automatic span/2: this times the largest recent |B|
   std::size_t span_recent_runs = 16;   // ... over this many closed runs
   double span_floor_tolerances = 5.0;  // ... and at least this many tolerances
-  double tolerance_noise_factor = 10.0;  // automatic tolerance: this times sigma_B
+  double tolerance_noise_factor = 20.0;  // automatic tolerance: this times sigma_B
   double tolerance_floor_t = 1e-6;
   double tolerance_cap_t = 2e-3;
   std::size_t min_points = 20;         // a sweep holds at least this many points
@@ -253,7 +268,10 @@ struct RejectedRuns {
   std::size_t below_span = 0;     // passed through zero, reached span/2 on neither side
   std::size_t few_points = 0;     // fewer than min_points points
   std::size_t fast_returns = 0;   // below fast_return_density of the last sweep's points per tesla
-  std::size_t total() const { return no_direction + off_zero + below_span + few_points + fast_returns; }
+  std::size_t approach_legs = 0;  // one-sided, beside a two-sided sweep (see One-sided legs)
+  std::size_t total() const {
+    return no_direction + off_zero + below_span + few_points + fast_returns + approach_legs;
+  }
   bool operator==(const RejectedRuns&) const = default;
 };
 
@@ -321,6 +339,10 @@ class SweepSegmenter {
   void emit(std::size_t first, std::size_t last, RunDirection dir, bool truncated,
             SegmentOutput& out);
   void track_field(const align::AlignedPoint& p);
+  void deliver(Sweep&& sweep, SegmentOutput& out);
+  std::optional<Sweep> pending_;      // a one-sided sweep waiting for the next traverse
+  std::optional<Sides> last_sides_;   // of the last traverse that qualified
+  std::optional<double> run_origin_t_;  // the field at the reversal that began the open run
   double half_span_t(double reach_t);
 
   SegmentDiagnostics diagnostics_;

@@ -57,24 +57,24 @@ void print_human(const json& s) {
   // Each sample's analysis: what it dropped, by reason, and why it has no
   // sweeps when it has none.
   if (s.contains("samples") && s.at("samples").is_array()) {
-    for (const auto& c : s.at("samples")) {
-      const auto& f = c.at("field");
-      std::cout << "sample " << c.value("sample", "") << ": " << c.value("lockin_readings", std::uint64_t{0})
-                << " lock-in readings, " << c.value("aligned_points", std::uint64_t{0}) << " aligned, "
-                << c.value("sweeps", std::uint64_t{0}) << " sweeps; field every "
+    for (const auto& sample : s.at("samples")) {
+      const auto& f = sample.at("field");
+      std::cout << "sample " << sample.value("sample", "") << ": " << sample.value("lockin_readings", std::uint64_t{0})
+                << " lock-in readings, " << sample.value("aligned_points", std::uint64_t{0}) << " aligned, "
+                << sample.value("sweeps", std::uint64_t{0}) << " sweeps; field every "
                 << fixed(f.value("median_interval_s", 0.0), 3) << " s (age limit "
                 << fixed(f.value("age_limit_s", 0.0), 1) << " s), reversal tolerance "
                 << fmt::format("{:.3g}", f.value("reversal_tolerance_t", 0.0) * 1e3) << " mT, span/2 "
                 << fmt::format("{:.3g}", f.value("half_span_t", 0.0) * 1e3) << " mT\n";
       for (const char* stage : {"aligner", "segmenter"}) {
         std::string line;
-        for (const auto& [reason, n] : c.at("dropped").at(stage).items()) {
+        for (const auto& [reason, n] : sample.at("dropped").at(stage).items()) {
           if (n.get<std::uint64_t>() > 0) line += " " + reason + "=" + std::to_string(n.get<std::uint64_t>());
         }
         if (!line.empty()) std::cout << "  dropped by the " << stage << ":" << line << "\n";
       }
-      if (c.contains("no_sweeps_reason") && c.at("no_sweeps_reason").is_string()) {
-        std::cout << "  no sweeps: " << c.at("no_sweeps_reason").get<std::string>() << "\n";
+      if (sample.contains("no_sweeps_reason") && sample.at("no_sweeps_reason").is_string()) {
+        std::cout << "  no sweeps: " << sample.at("no_sweeps_reason").get<std::string>() << "\n";
       }
     }
   }

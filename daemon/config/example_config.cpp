@@ -100,7 +100,7 @@ field = "magnet"
 # sweep_min_span_t = 0.01        # a sweep passes through zero field and reaches span/2 on at
 #                                # least one side (two-sided or one-sided). Automatic: span/2 is a
 #                                # tenth of the largest |B| of the last 16 runs, at least 5 tolerances
-# reversal_tolerance_t = 1e-5    # field noise that does not end a sweep. Automatic: 10 times the
+# reversal_tolerance_t = 1e-5    # field noise that does not end a sweep. Automatic: 20 times the
 #                                # field readings' noise, at least 1 uT, at most 2 mT
 # field_step_t = 0.0             # a field step this large settles the lock-in again; 0: off
 # plateau_relative_spread = 0.02 # (T_max - T_min)/T_mean within one temperature plateau

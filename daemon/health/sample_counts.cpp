@@ -43,6 +43,7 @@ std::map<std::string, std::size_t> segmenter_drops(const segment::SegmentCounts&
           {"runs_below_span", s.rejected.below_span},
           {"runs_few_points", s.rejected.few_points},
           {"runs_fast_return", s.rejected.fast_returns},
+          {"runs_approach_leg", s.rejected.approach_legs},
           {"runs_truncated", s.truncated_discarded}};
 }
 

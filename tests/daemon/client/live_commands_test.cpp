@@ -11,7 +11,10 @@
 #include <chrono>
 #include <cmath>
 #include <filesystem>
+#include <fmt/format.h>
+#include <fstream>
 #include <future>
+#include <iterator>
 #include <nlohmann/json.hpp>
 #include <set>
 #include <sstream>
@@ -336,6 +339,64 @@ TEST(LiveCommands, ReplayOfARecordingInLabUnitsWithColumnMappingsGivesTheSiFits)
     }
     EXPECT_NEAR(b["lphi_m"].get<double>(), a["lphi_m"].get<double>(), 1e-9 * a["lphi_m"].get<double>()) << k;
   }
+}
+
+}  // namespace
+
+namespace {
+
+// A cooldown whose magnet never passes through zero field: it ramps between
+// +20 and +60 mT (a field offset left set by hand, say). No run is a sweep;
+// the replay must say so and exit 5, and `lphi status` must show the runs
+// dropped for it and the same reason.
+TEST(LiveCommands, AReplayWithoutSweepsExitsFiveAndSaysWhy) {
+  Daemon d;
+  ASSERT_TRUE(d.process.start());
+  std::string csv = "time_s,temperature_k,field_t,lockin_x_v,lockin_y_v\n";
+  for (int i = 0; i < 4000; ++i) {
+    const double t = 0.1 * i;
+    const double u = std::fmod(t, 80.0) / 40.0;  // a triangle of period 80 s
+    const double field = 0.02 + 0.04 * (u < 1.0 ? u : 2.0 - u);
+    csv += fmt::format("{:.1f},0.1,{:.9g},5e-3,5e-5\n", t, field);
+  }
+  const auto r = replay(d, d.dir.write("offset.csv", csv));
+  EXPECT_EQ(r.exit_code, 5) << r.out << r.err;
+  EXPECT_THAT(r.err, HasSubstr("no sweeps for film-a: the field never passed through zero"));
+  EXPECT_THAT(r.err, HasSubstr("between 20 mT and 60 mT"));
+
+  const auto status = lphi_cli({"status", "--json", "--data-dir", d.data_dir});
+  ASSERT_EQ(status.exit_code, 0) << status.err;
+  const json s = parsed(status);
+  ASSERT_EQ(s.at("samples").size(), 1u) << s.dump();
+  const json& sample = s.at("samples").at(0);
+  EXPECT_EQ(sample.value("sample", ""), "film-a");
+  EXPECT_EQ(sample.value("sweeps", -1), 0);
+  EXPECT_EQ(sample.value("lockin_readings", 0), 4000);
+  // Ten ramps of 40 s closed by their reversal (the last one is still
+  // open): each counted as a run off zero.
+  EXPECT_EQ(sample.at("dropped").at("segmenter").value("runs_off_zero", 0), 9) << sample.dump();
+  EXPECT_GT(sample.at("dropped").at("segmenter").value("settling_field_reversal", 0), 0);
+  EXPECT_THAT(sample.value("no_sweeps_reason", ""), HasSubstr("never passed through zero"));
+  // The field was read with every lock-in reading (0.1 s apart): the
+  // automatic age limit is its floor, 2 s.
+  EXPECT_DOUBLE_EQ(sample.at("field").value("median_interval_s", 0.0), 0.1);
+  EXPECT_DOUBLE_EQ(sample.at("field").value("age_limit_s", 0.0), 2.0);
+  const auto human = lphi_cli({"status", "--data-dir", d.data_dir});
+  EXPECT_THAT(human.out, HasSubstr("sample film-a: 4000 lock-in readings"));
+  EXPECT_THAT(human.out, HasSubstr("runs_off_zero=9"));
+  EXPECT_THAT(human.out, HasSubstr("no sweeps: the field never passed through zero"));
+  // lphid logged the reason's counter when it first became non-zero (its
+  // log is flushed when it stops).
+  EXPECT_EQ(d.process.stop(), 0);
+  std::string log;
+  for (const auto& entry : std::filesystem::directory_iterator(d.data_dir)) {
+    if (entry.path().extension() == ".log" || entry.path().filename() == "lphid.stderr" ||
+        entry.path().filename() == "lphid.stdout") {
+      std::ifstream in(entry.path());
+      log += std::string(std::istreambuf_iterator<char>(in), {});
+    }
+  }
+  EXPECT_THAT(log, HasSubstr("sample film-a: dropping readings or runs: segmenter.runs_off_zero"));
 }
 
 }  // namespace
