@@ -14,7 +14,6 @@
 #include <fmt/format.h>
 #include <fstream>
 #include <future>
-#include <iterator>
 #include <nlohmann/json.hpp>
 #include <set>
 #include <sstream>
@@ -377,9 +376,10 @@ TEST(LiveCommands, AReplayWithoutSweepsExitsFiveAndSaysWhy) {
   EXPECT_EQ(sample.at("dropped").at("segmenter").value("runs_off_zero", 0), 9) << sample.dump();
   EXPECT_GT(sample.at("dropped").at("segmenter").value("settling_field_reversal", 0), 0);
   EXPECT_THAT(sample.value("no_sweeps_reason", ""), HasSubstr("never passed through zero"));
-  // The field was read with every lock-in reading (0.1 s apart): the
-  // automatic age limit is its floor, 2 s.
-  EXPECT_DOUBLE_EQ(sample.at("field").value("median_interval_s", 0.0), 0.1);
+  // The field was read with every lock-in reading (0.1 s apart; Unix times
+  // near 1.8e9 s are doubles 2.4e-7 s apart): the automatic age limit is
+  // its floor, 2 s.
+  EXPECT_NEAR(sample.at("field").value("median_interval_s", 0.0), 0.1, 1e-6);
   EXPECT_DOUBLE_EQ(sample.at("field").value("age_limit_s", 0.0), 2.0);
   const auto human = lphi_cli({"status", "--data-dir", d.data_dir});
   EXPECT_THAT(human.out, HasSubstr("sample film-a: 4000 lock-in readings"));
@@ -393,7 +393,7 @@ TEST(LiveCommands, AReplayWithoutSweepsExitsFiveAndSaysWhy) {
     if (entry.path().extension() == ".log" || entry.path().filename() == "lphid.stderr" ||
         entry.path().filename() == "lphid.stdout") {
       std::ifstream in(entry.path());
-      log += std::string(std::istreambuf_iterator<char>(in), {});
+      for (std::string line; std::getline(in, line);) log += line + "\n";
     }
   }
   EXPECT_THAT(log, HasSubstr("sample film-a: dropping readings or runs: segmenter.runs_off_zero"));
