@@ -164,9 +164,11 @@ TEST(ScenarioAlerts, HeatingRaisesElectronsNotCooling) {
 TEST(ScenarioAlerts, SilentSourcesAreRaisedOnTheWallClock) {
   // source-silent is the one rule on wall time: once the replay has ended
   // nothing arrives, and with silent_s = 2 each of the three sources is
-  // reported within a few health ticks (1 s apart).
+  // reported within a few health ticks (1 s apart). 4500 s hold the first
+  // sweep (2600 to 3600 s), closed by the turn after it: a replay that
+  // ends without a sweep exits 5.
   LiveRun run;
-  ASSERT_TRUE(run.record("saturation.toml", 0.2, {"--duration-s", "3000"})) << run.error();
+  ASSERT_TRUE(run.record("saturation.toml", 0.2, {"--duration-s", "4500"})) << run.error();
   run.write_config("film", "", "", "[alerts.source-silent]\nsilent_s = 2.0\n");
   ASSERT_TRUE(run.start_daemon()) << run.error();
   const auto r = run.replay(run.csv_path(), "film");
@@ -192,8 +194,9 @@ TEST(ScenarioAlerts, LivenessRulesAreRaisedAndClearedOnTheWallClock) {
   //  - disk-space (min_free_bytes = 1e18, more than any disk here): raised
   //    at the first health tick; lphid restarted with 1 byte (a restart
   //    keeps live alerts) clears it at its first tick.
+  // 4500 s hold the first sweep (a replay without one exits 5).
   LiveRun run;
-  ASSERT_TRUE(run.record("saturation.toml", 0.2, {"--duration-s", "3000"})) << run.error();
+  ASSERT_TRUE(run.record("saturation.toml", 0.2, {"--duration-s", "4500"})) << run.error();
   const std::string narrowed = "[alerts.source-silent]\nsilent_s = 2.0\n[alerts.gap]\nquiet_s = 2.0\n";
   run.write_config("film", "", "", narrowed + "[alerts.disk-space]\nmin_free_bytes = 1.0e18\n");
   ASSERT_TRUE(run.start_daemon()) << run.error();
