@@ -115,7 +115,8 @@
 // covers the span, else counted in truncated_discarded; segmentation then
 // starts afresh (direction unknown) with the next point. Choose max_points
 // above the number of points a real sweep has (20 Hz for a 30 min sweep is
-// 36000). The PlateauDetector holds O(1) state.
+// 36000). A one-sided sweep waiting for the next traverse (One-sided legs)
+// holds at most max_points more. The PlateauDetector holds O(1) state.
 //
 // Cost and determinism. Every point is appended once and moved at most once
 // more (the tail after an extreme); a closed sweep is scanned once: amortized
