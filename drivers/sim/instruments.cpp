@@ -185,7 +185,10 @@ std::optional<std::string> SimInstrument::run_lockin(const scpi::Request& r, dou
     return std::nullopt;
   }
   if (matches("SENSe:TCONstant", r)) {
-    if (r.query) return no_args(r, error, failed) ? std::optional(format_number(time_constant_s_)) : std::nullopt;
+    if (r.query)
+      return no_args(r, error, failed)
+                 ? std::optional(format_number(world_->lockin_time_constant_s(t_s, time_constant_s_)))
+                 : std::nullopt;
     if (auto v = one_number(r, error, failed)) {
       if (auto step = round_up(kTimeConstants, *v); step && *v > 0) time_constant_s_ = *step;
       else { error = scpi::data_out_of_range(r.args[0]); failed = true; }

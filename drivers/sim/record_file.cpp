@@ -59,7 +59,13 @@ std::string write_recording(const Scenario& scenario, const RecordingOptions& op
   File csv(std::fopen(csv_path.c_str(), "w"));
   if (!csv) return cannot_write("recording", csv_path);
   std::setvbuf(csv.get(), buffer.data(), _IOFBF, buffer.size());
-  std::fputs("time_s,temperature_k,field_t,lockin_x_v,lockin_y_v,lockin_overload\n", csv.get());
+  // The time constant is a column only when a fault changes it: without one
+  // the recording is the one lphi-sim has always written.
+  const bool with_tau = !scenario.faults.time_constants.empty();
+  std::fputs(with_tau ? "time_s,temperature_k,field_t,lockin_x_v,lockin_y_v,lockin_overload,"
+                        "lockin_time_constant_s\n"
+                      : "time_s,temperature_k,field_t,lockin_x_v,lockin_y_v,lockin_overload\n",
+             csv.get());
   summary = {};
   summary.end_s = recorder.end_s();
   std::string row_text;
@@ -70,10 +76,12 @@ std::string write_recording(const Scenario& scenario, const RecordingOptions& op
     if (r.has_temperature) fmt::format_to(std::back_inserter(row_text), "{:.12g}", r.temperature_k);
     fmt::format_to(std::back_inserter(row_text), ",{:.12g},", r.field_t);
     if (r.has_lockin) {
-      fmt::format_to(std::back_inserter(row_text), "{:.12g},{:.12g},{}\n", r.lockin.x_v, r.lockin.y_v,
+      fmt::format_to(std::back_inserter(row_text), "{:.12g},{:.12g},{}", r.lockin.x_v, r.lockin.y_v,
                      r.lockin.overload ? 1 : 0);
+      if (with_tau) fmt::format_to(std::back_inserter(row_text), ",{:.12g}", r.time_constant_s);
+      row_text.push_back('\n');
     } else {
-      row_text.append(",,\n");
+      row_text.append(with_tau ? ",,,\n" : ",,\n");
     }
     std::fputs(row_text.c_str(), csv.get());
     ++summary.rows;

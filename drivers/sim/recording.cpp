@@ -41,9 +41,10 @@ RecordedRow Recorder::at(double t_s, bool with_temperature) const {
     r.has_temperature = true;
     r.temperature_k = world_->thermometer(t_s).temperature_k;
   }
-  if (lockin_answers(world_->scenario(), t_s)) {
+  if (lockin_answers(world_->scenario(), t_s) && !world_->lockin_in_hole(t_s)) {
     r.has_lockin = true;
     r.lockin = world_->lockin(t_s, time_constant_s_, range_v_);
+    r.time_constant_s = world_->lockin_time_constant_s(t_s, time_constant_s_);
   }
   return r;
 }

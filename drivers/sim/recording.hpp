@@ -8,7 +8,9 @@
 //   - the magnet's field reading (every row);
 //   - the lock-in's reading X, Y, overload with the instrument's settings
 //     (range, time constant), except inside a lockin-dropout window (either
-//     mode: a poller gets no reply then), where the lock-in part is empty;
+//     mode: a poller gets no reply then) or a lockin-hole fault's field
+//     range, where the lock-in part is empty; and the time constant in
+//     effect (a lockin-time-constant fault's inside its window);
 //   - the thermometer's reading on every thermometer_every-th row (k a
 //     multiple of it), stuck windows included (World::thermometer).
 // Connection resets have no counterpart: a recording has no connections.
@@ -45,6 +47,7 @@ struct RecordedRow {
   double field_t = 0.0;
   bool has_lockin = false;
   LockinReading lockin;
+  double time_constant_s = 0.0;   // when has_lockin
 };
 
 // Whether the lock-in answers at t: false inside a lockin-dropout window.

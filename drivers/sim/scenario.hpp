@@ -42,6 +42,15 @@ struct NoiseLevels {
   double field_t = 0.0;                 // rms on the magnet's field reading
 };
 
+// How a plateau's magnet sweeps: `both` alternately -B_max -> +B_max and
+// back; `up` only -B_max -> +B_max, the magnet returning to -B_max at
+// kFastReturnFactor times the rate between sweeps (a one-way magnet);
+// `unipolar` legs alternately 0 -> +B_max and +B_max -> 0 (a one-sided
+// magnet), each leg one sweep.
+enum class SweepMode { both, up, unipolar };
+inline constexpr double kFastReturnFactor = 20.0;
+const char* sweep_mode_name(SweepMode m);  // "both", "up", "unipolar"
+
 struct Plateau {
   double temperature_k = 1.0;
   double ramp_s = 600.0;        // linear change from the previous temperature
@@ -49,6 +58,7 @@ struct Plateau {
   int sweeps = 2;               // alternately -B_max -> +B_max and back
   double max_field_t = 0.05;
   double rate_t_per_s = 1e-4;
+  SweepMode sweep_mode = SweepMode::both;
 };
 
 struct Programme {
@@ -66,6 +76,10 @@ struct Faults {
     double start_s = 0.0;
     double duration_s = 0.0;
     bool contains(double t) const { return t >= start_s && t < start_s + duration_s; }
+    // duration_s 0 means "to the end" (the faults that say so).
+    bool contains_open(double t) const {
+      return t >= start_s && (duration_s <= 0.0 || t < start_s + duration_s);
+    }
   };
   // Lock-in dropout: "close" closes every connection and every new one at
   // once; "silent" keeps connections open but answers nothing.
@@ -101,6 +115,41 @@ struct Faults {
   // flows through the sample, so the lock-in reads only its noise floor.
   std::vector<Window> open_contacts;
   std::vector<Reset> resets;
+  // The field at the sample is the magnet's reading plus field_t from
+  // start_s on (a superconducting magnet's trapped flux after a high-field
+  // excursion).
+  struct Remanence {
+    double field_t = 0.0;
+    double start_s = 0.0;
+  };
+  std::vector<Remanence> remanences;    // summed when several are in effect
+  // The magnet reports the field it had delay_s earlier.
+  double field_lag_s = 0.0;
+  // The lock-in's time constant is raised to time_constant_s in the window
+  // (duration_s 0: to the end); SENS:TCON? reports it.
+  struct TimeConstant : Window {
+    double time_constant_s = 0.0;
+  };
+  std::vector<TimeConstant> time_constants;
+  // No lock-in reading while the magnet's field is in [from_t, to_t] inside
+  // the window (duration_s 0: to the end).
+  struct Hole : Window {
+    double from_t = 0.0, to_t = 0.0;
+  };
+  std::vector<Hole> holes;
+  // The bath drifts linearly from T_p to T_p (1 + relative) across each
+  // plateau's sweeps, holds that to the plateau's end, and joins the next
+  // plateau's ramp.
+  double plateau_drift_relative = 0.0;
+  // The lock-in's gain (X and Y with it) is multiplied by
+  // 1 + per_hour (t - start_s) / 3600 s from start_s on.
+  double gain_drift_per_hour = 0.0;
+  double gain_drift_start_s = 0.0;
+  // Isolated outliers on X: each noise interval carries one with
+  // probability `probability`, of size size_sigma * noise.lockin_x_v and
+  // random sign.
+  double spike_probability = 0.0;
+  double spike_size_sigma = 0.0;
   bool heating = false;                 // electron heating from heating_start_s on
   double heating_start_s = 0.0;
   double heating_duration_s = 0.0;      // 0: until the end (the filtering is never fixed)

@@ -141,12 +141,18 @@ void read_plateau_keys(Reader& r, const toml::table& t, const std::string& path,
   }
   r.number(t, "max_field_t", path, p.max_field_t);
   r.number(t, "rate_t_per_s", path, p.rate_t_per_s);
+  std::string mode = sweep_mode_name(p.sweep_mode);
+  r.text(t, "sweep_mode", path, mode);
+  if (mode == "both") p.sweep_mode = SweepMode::both;
+  else if (mode == "up") p.sweep_mode = SweepMode::up;
+  else if (mode == "unipolar") p.sweep_mode = SweepMode::unipolar;
+  else r.fail(t.get("sweep_mode")->source(), "'" + path + "sweep_mode' must be both, up or unipolar (got '" + mode + "')");
 }
 
 void read_programme(Reader& r, const toml::table& t, Programme& p) {
   r.known_keys(t, "programme.",
                {"start_temperature_k", "ramp_s", "dwell_s", "sweeps", "max_field_t",
-                "rate_t_per_s", "plateau"});
+                "rate_t_per_s", "sweep_mode", "plateau"});
   r.number(t, "start_temperature_k", "programme.", p.start_temperature_k);
   Plateau defaults;  // [programme] keys are the defaults of every plateau
   read_plateau_keys(r, t, "programme.", defaults);
@@ -155,7 +161,8 @@ void read_programme(Reader& r, const toml::table& t, Programme& p) {
   for (const toml::node& n : *plateaus) {
     const toml::table& q = *n.as_table();
     r.known_keys(q, "programme.plateau.",
-                 {"temperature_k", "ramp_s", "dwell_s", "sweeps", "max_field_t", "rate_t_per_s"});
+                 {"temperature_k", "ramp_s", "dwell_s", "sweeps", "max_field_t", "rate_t_per_s",
+                  "sweep_mode"});
     Plateau plateau = defaults;
     if (q.get("temperature_k") == nullptr)
       r.fail(q.source(), "[[programme.plateau]] needs 'temperature_k'");
@@ -171,10 +178,76 @@ std::optional<Instrument> instrument_from_name(std::string_view name) {
   return std::nullopt;
 }
 
-void read_fault(Reader& r, const toml::table& t, Faults& f) {
+// A fault's key without a usable default: its absence is an error naming
+// the key and the fault's kind.
+void require(Reader& r, const toml::table& t, std::string_view kind, std::string_view key) {
+  if (t.get(key) == nullptr)
+    r.fail(t.source(), "[[fault]] kind = \"" + std::string(kind) + "\" needs 'fault." +
+                           std::string(key) + "'");
+}
+
+// A fault kind that may appear once per scenario.
+void once(Reader& r, const toml::table& t, std::string_view kind, bool& seen) {
+  if (seen) r.fail(t.source(), "only one " + std::string(kind) + " fault is allowed");
+  seen = true;
+}
+
+struct SeenOnce {
+  bool lag = false, drift = false, gain = false, spikes = false;
+};
+
+void read_fault(Reader& r, const toml::table& t, Faults& f, SeenOnce& seen) {
   std::string kind;
   r.text(t, "kind", "fault.", kind);
-  if (kind == "lockin-dropout") {
+  if (kind == "remanent-field") {
+    r.known_keys(t, "fault.", {"kind", "field_t", "start_s"});
+    require(r, t, kind, "field_t");
+    Faults::Remanence m;
+    r.number(t, "field_t", "fault.", m.field_t);
+    r.number(t, "start_s", "fault.", m.start_s);
+    f.remanences.push_back(m);
+  } else if (kind == "field-reading-lag") {
+    r.known_keys(t, "fault.", {"kind", "delay_s"});
+    require(r, t, kind, "delay_s");
+    once(r, t, kind, seen.lag);
+    r.number(t, "delay_s", "fault.", f.field_lag_s);
+  } else if (kind == "lockin-time-constant") {
+    r.known_keys(t, "fault.", {"kind", "time_constant_s", "start_s", "duration_s"});
+    require(r, t, kind, "time_constant_s");
+    Faults::TimeConstant c;
+    r.number(t, "time_constant_s", "fault.", c.time_constant_s);
+    r.number(t, "start_s", "fault.", c.start_s);
+    r.number(t, "duration_s", "fault.", c.duration_s);
+    f.time_constants.push_back(c);
+  } else if (kind == "lockin-hole") {
+    r.known_keys(t, "fault.", {"kind", "from_t", "to_t", "start_s", "duration_s"});
+    require(r, t, kind, "from_t");
+    require(r, t, kind, "to_t");
+    Faults::Hole h;
+    r.number(t, "from_t", "fault.", h.from_t);
+    r.number(t, "to_t", "fault.", h.to_t);
+    r.number(t, "start_s", "fault.", h.start_s);
+    r.number(t, "duration_s", "fault.", h.duration_s);
+    f.holes.push_back(h);
+  } else if (kind == "plateau-drift") {
+    r.known_keys(t, "fault.", {"kind", "relative"});
+    require(r, t, kind, "relative");
+    once(r, t, kind, seen.drift);
+    r.number(t, "relative", "fault.", f.plateau_drift_relative);
+  } else if (kind == "gain-drift") {
+    r.known_keys(t, "fault.", {"kind", "per_hour", "start_s"});
+    require(r, t, kind, "per_hour");
+    once(r, t, kind, seen.gain);
+    r.number(t, "per_hour", "fault.", f.gain_drift_per_hour);
+    r.number(t, "start_s", "fault.", f.gain_drift_start_s);
+  } else if (kind == "spikes") {
+    r.known_keys(t, "fault.", {"kind", "probability", "size_sigma"});
+    require(r, t, kind, "probability");
+    require(r, t, kind, "size_sigma");
+    once(r, t, kind, seen.spikes);
+    r.number(t, "probability", "fault.", f.spike_probability);
+    r.number(t, "size_sigma", "fault.", f.spike_size_sigma);
+  } else if (kind == "lockin-dropout") {
     r.known_keys(t, "fault.", {"kind", "start_s", "duration_s", "mode"});
     Faults::Dropout d;
     r.number(t, "start_s", "fault.", d.start_s);
@@ -245,9 +318,9 @@ void read_fault(Reader& r, const toml::table& t, Faults& f) {
     f.open_contacts.push_back(w);
   } else {
     r.fail(t.source(), "'fault.kind' must be lockin-dropout, thermometer-stuck, connection-reset, "
-                       "electron-heating, lockin-range, quadrature-pickup, temperature-excursion or "
-                       "open-contact "
-                       "(got '" + kind + "')");
+                       "electron-heating, lockin-range, quadrature-pickup, temperature-excursion, "
+                       "open-contact, remanent-field, field-reading-lag, lockin-time-constant, "
+                       "lockin-hole, plateau-drift, gain-drift or spikes (got '" + kind + "')");
   }
 }
 
@@ -320,7 +393,8 @@ ScenarioLoad parse_scenario(std::string_view toml_text, std::string_view origin)
     }
   }
   if (const toml::array* faults = r.array_of_tables(root, "fault", "")) {
-    for (const toml::node& n : *faults) read_fault(r, *n.as_table(), s.faults);
+    SeenOnce seen;
+    for (const toml::node& n : *faults) read_fault(r, *n.as_table(), s.faults, seen);
   }
   if (r.failed()) {
     out.error = r.error();

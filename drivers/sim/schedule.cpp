@@ -56,25 +56,42 @@ Schedule::Schedule(const Programme& p) {
     planned.reached_s = t;
     t += q.dwell_s;
     field_.add(t, 0.0);
-    const double sweep_s = 2.0 * q.max_field_t / q.rate_t_per_s;
-    t += q.max_field_t / q.rate_t_per_s;
-    field_.add(t, -q.max_field_t);
-    double from = -q.max_field_t;
+    planned.sweeps_start_s = t;
+    const double sweep_s = (q.sweep_mode == SweepMode::unipolar ? 1.0 : 2.0) * q.max_field_t / q.rate_t_per_s;
+    double from = 0.0;
+    if (q.sweep_mode != SweepMode::unipolar) {
+      t += q.max_field_t / q.rate_t_per_s;
+      field_.add(t, -q.max_field_t);
+      from = -q.max_field_t;
+      planned.sweeps_start_s = t;
+    }
     for (int k = 0; k < q.sweeps; ++k) {
       PlannedSweep s;
       s.plateau = i;
       s.index = k;
       s.start_s = t;
       s.from_t = from;
-      s.to_t = -from;
+      switch (q.sweep_mode) {
+        case SweepMode::both: s.to_t = -from; break;
+        case SweepMode::up: s.to_t = q.max_field_t; break;
+        case SweepMode::unipolar: s.to_t = from == 0.0 ? q.max_field_t : 0.0; break;
+      }
       t += sweep_s;
       s.end_s = t;
       field_.add(t, s.to_t);
       sweeps_.push_back(s);
-      from = -from;
+      from = s.to_t;
+      if (q.sweep_mode == SweepMode::up && k + 1 < q.sweeps) {
+        t += 2.0 * q.max_field_t / (kFastReturnFactor * q.rate_t_per_s);
+        field_.add(t, -q.max_field_t);
+        from = -q.max_field_t;
+      }
     }
-    t += q.max_field_t / q.rate_t_per_s;
-    field_.add(t, 0.0);
+    planned.sweeps_end_s = t;
+    if (from != 0.0) {
+      t += std::abs(from) / q.rate_t_per_s;
+      field_.add(t, 0.0);
+    }
     temperature_.add(t, q.temperature_k);
     planned.end_s = t;
     plateaus_.push_back(planned);

@@ -1,8 +1,15 @@
 // The cooldown programme laid out in simulated time. For each plateau: the
 // temperature ramps linearly from the previous plateau's value over ramp_s,
-// stays there for dwell_s at zero field, the magnet ramps 0 -> -B_max, runs
-// `sweeps` full sweeps alternately -B_max -> +B_max and +B_max -> -B_max at
-// the plateau's rate, and ramps back to 0. The next plateau starts then.
+// stays there for dwell_s at zero field, then the magnet sweeps at the
+// plateau's rate as its sweep_mode says:
+//   both:     0 -> -B_max, `sweeps` sweeps alternately -B_max -> +B_max and
+//             +B_max -> -B_max, back to 0;
+//   up:       0 -> -B_max, `sweeps` sweeps -B_max -> +B_max, each but the
+//             last followed by a return +B_max -> -B_max at kFastReturnFactor
+//             times the rate (not a sweep), back to 0;
+//   unipolar: `sweeps` legs alternately 0 -> +B_max and +B_max -> 0 from
+//             zero field, back to 0 if the last leg ends at +B_max.
+// The next plateau starts then.
 // Pure: a Schedule is immutable after construction and safe to share.
 #pragma once
 
@@ -39,6 +46,8 @@ struct PlannedPlateau {
   double ramp_start_s = 0.0;   // the temperature starts to change
   double reached_s = 0.0;      // the temperature is at the plateau value
   double end_s = 0.0;          // the field is back at 0
+  double sweeps_start_s = 0.0; // the first sweep starts (reached_s + dwell when none)
+  double sweeps_end_s = 0.0;   // the last sweep ends
 };
 
 class Schedule {

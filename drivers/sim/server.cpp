@@ -51,7 +51,7 @@ struct SimServer::Impl {
   bool lockin_silent(double t) const {
     for (const auto& d : world.scenario().faults.dropouts)
       if (d.silent && d.contains(t)) return true;
-    return false;
+    return world.lockin_in_hole(t);  // a lockin-hole: no reply while the field is in it
   }
 
   void accept(Instrument i);

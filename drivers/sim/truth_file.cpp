@@ -12,6 +12,44 @@ void add_truth(nlohmann::json& j, const Truth& t) {
   j["sigma0_s"] = t.sigma0_s;
   j["heating"] = t.heating;
   j["manual_field"] = t.manual_field;
+  j["field_offset_t"] = t.field_offset_t;
+  j["field_lag_s"] = t.field_lag_s;
+  j["lockin_time_constant_s"] = t.lockin_time_constant_s;
+  j["gain_factor"] = t.gain_factor;
+  j["temperature_start_k"] = t.temperature_start_k;
+  j["temperature_end_k"] = t.temperature_end_k;
+  j["lockin_hole"] = t.lockin_hole;
+  if (t.lockin_hole) {
+    j["hole_from_t"] = t.hole_from_t;
+    j["hole_to_t"] = t.hole_to_t;
+  }
+}
+
+// The faults of issue-style measurement trouble, with their parameters as
+// the scenario file gave them (the instrument faults of the served run,
+// dropouts and resets, are not analysis truth and are left out).
+nlohmann::json fault_list(const Scenario& s) {
+  const Faults& f = s.faults;
+  nlohmann::json out = nlohmann::json::array();
+  for (const auto& m : f.remanences)
+    out.push_back({{"kind", "remanent-field"}, {"field_t", m.field_t}, {"start_s", m.start_s}});
+  if (f.field_lag_s > 0.0) out.push_back({{"kind", "field-reading-lag"}, {"delay_s", f.field_lag_s}});
+  for (const auto& c : f.time_constants)
+    out.push_back({{"kind", "lockin-time-constant"}, {"time_constant_s", c.time_constant_s},
+                   {"start_s", c.start_s}, {"duration_s", c.duration_s}});
+  for (const auto& h : f.holes)
+    out.push_back({{"kind", "lockin-hole"}, {"from_t", h.from_t}, {"to_t", h.to_t},
+                   {"start_s", h.start_s}, {"duration_s", h.duration_s}});
+  if (f.plateau_drift_relative != 0.0)
+    out.push_back({{"kind", "plateau-drift"}, {"relative", f.plateau_drift_relative}});
+  if (f.gain_drift_per_hour != 0.0)
+    out.push_back({{"kind", "gain-drift"}, {"per_hour", f.gain_drift_per_hour},
+                   {"start_s", f.gain_drift_start_s}});
+  if (f.spike_probability > 0.0)
+    out.push_back({{"kind", "spikes"}, {"probability", f.spike_probability},
+                   {"size_sigma", f.spike_size_sigma},
+                   {"size_v", f.spike_size_sigma * s.noise.lockin_x_v}});
+  return out;
 }
 
 }  // namespace
@@ -52,6 +90,7 @@ std::string scenario_record(const Scenario& s) {
                 {"lockin_y_v", s.noise.lockin_y_v},
                 {"temperature_rel", s.noise.temperature_rel},
                 {"field_t", s.noise.field_t}};
+  j["faults"] = fault_list(s);
   return j.dump();
 }
 
@@ -62,6 +101,7 @@ std::string plateau_record(const World& w, const PlannedPlateau& p) {
   j["nominal_temperature_k"] = p.temperature_k;
   j["start_s"] = p.reached_s;
   j["end_s"] = p.end_s;
+  j["sweep_mode"] = sweep_mode_name(w.scenario().programme.plateaus[p.index].sweep_mode);
   add_truth(j, w.truth(p.reached_s, p.end_s));
   return j.dump();
 }

@@ -9,7 +9,13 @@
 // lphi_m, sigma0_s (sheet conductance at B = 0), whether electron heating was
 // on, whether the magnet was taken over by a set command (manual_field; the
 // sweep then did not follow the programme), and start_s / end_s in simulated
-// time. Numbers are written with 17 significant digits, so they read back
+// time; and the measurement faults in effect: field_offset_t (remanent
+// field), field_lag_s, lockin_time_constant_s, gain_factor, the bath's
+// temperature_start_k / temperature_end_k (a plateau drift), and lockin_hole
+// with hole_from_t / hole_to_t. The bath drifts linearly under a
+// plateau-drift fault, so the midpoint temperature is the sweep's mean and
+// lphi_m is L_phi at that mean. The scenario record lists the faults with
+// their parameters under "faults"; plateau records give the sweep_mode. Numbers are written with 17 significant digits, so they read back
 // exactly.
 #pragma once
 

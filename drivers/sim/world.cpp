@@ -89,6 +89,27 @@ World::World(Scenario s)
 
 double World::bath_temperature_k(double t_s) const {
   double t = schedule_.temperature_k(t_s);
+  if (const double rel = scenario_.faults.plateau_drift_relative; rel != 0.0) {
+    // The drift: linear in time across the plateau's sweeps,
+    // held to the plateau's end, fading over the next plateau's ramp.
+    const auto& plateaus = schedule_.plateaus();
+    for (std::size_t i = 0; i < plateaus.size(); ++i) {
+      const PlannedPlateau& p = plateaus[i];
+      const double span = p.sweeps_end_s - p.sweeps_start_s;
+      if (span <= 0.0 || t_s < p.sweeps_start_s) continue;
+      const double full = rel * p.temperature_k;
+      if (t_s < p.sweeps_end_s) {
+        t += full * (t_s - p.sweeps_start_s) / span;
+      } else if (t_s < p.end_s) {
+        t += full;
+      } else if (i + 1 < plateaus.size() && t_s < plateaus[i + 1].reached_s) {
+        const double ramp = plateaus[i + 1].reached_s - p.end_s;
+        t += full * (1.0 - (t_s - p.end_s) / ramp);
+      } else if (i + 1 == plateaus.size()) {
+        t += full;  // the last plateau keeps its drifted temperature
+      }
+    }
+  }
   for (const Faults::Excursion& e : scenario_.faults.excursions) {
     if (!e.contains(t_s)) continue;
     const double s = std::sin(std::acos(-1.0) * (t_s - e.start_s) / e.duration_s);
@@ -101,6 +122,21 @@ double World::lockin_range_v(double t_s, double set_range_v) const {
   for (const Faults::Range& r : scenario_.faults.ranges)
     if (r.contains(t_s)) return r.range_v;
   return set_range_v;
+}
+
+double World::lockin_time_constant_s(double t_s, double set_time_constant_s) const {
+  for (const Faults::TimeConstant& c : scenario_.faults.time_constants)
+    if (c.contains_open(t_s)) return c.time_constant_s;
+  return set_time_constant_s;
+}
+
+bool World::lockin_in_hole(double t_s) const {
+  for (const Faults::Hole& h : scenario_.faults.holes) {
+    if (!h.contains_open(t_s)) continue;
+    const double b = magnet_.field_t(t_s);
+    if (b >= h.from_t && b <= h.to_t) return true;
+  }
+  return false;
 }
 
 double World::quadrature_fraction(double t_s) const {
@@ -128,8 +164,17 @@ double World::electron_temperature_k(double t_s) const {
                               scenario_.faults.heating_exponent);
 }
 
+double World::remanent_field_t(double t_s) const {
+  double b = 0.0;
+  for (const Faults::Remanence& r : scenario_.faults.remanences)
+    if (t_s >= r.start_s) b += r.field_t;
+  return b;
+}
+
+double World::true_field_t(double t_s) const { return magnet_.field_t(t_s) + remanent_field_t(t_s); }
+
 double World::sheet_conductance_s(double t_s) const {
-  return sim::sheet_conductance_s(scenario_.sample, scenario_.dephasing, magnet_.field_t(t_s),
+  return sim::sheet_conductance_s(scenario_.sample, scenario_.dephasing, true_field_t(t_s),
                                   electron_temperature_k(t_s));
 }
 
@@ -141,7 +186,22 @@ double World::sigma0_s(double t_s) const {
 double World::true_x_v(double t_s) const {
   if (open_contact_at(t_s)) return 0.0;  // no current: only the noise added in lockin()
   const LockinSettings& l = scenario_.lockin;
-  return lockin_x_v(1.0 / sheet_conductance_s(t_s), scenario_.sample.squares, l.current_a, l.gain);
+  return lockin_x_v(1.0 / sheet_conductance_s(t_s), scenario_.sample.squares, l.current_a,
+                    l.gain * gain_factor(t_s));
+}
+
+double World::gain_factor(double t_s) const {
+  const Faults& f = scenario_.faults;
+  if (f.gain_drift_per_hour == 0.0 || t_s < f.gain_drift_start_s) return 1.0;
+  return 1.0 + f.gain_drift_per_hour * (t_s - f.gain_drift_start_s) / 3600.0;
+}
+
+double World::spike_v(double t_s) const {
+  const Faults& f = scenario_.faults;
+  if (f.spike_probability <= 0.0) return 0.0;
+  if (uniform(NoiseChannel::spike, t_s) >= f.spike_probability) return 0.0;
+  const double size = f.spike_size_sigma * scenario_.noise.lockin_x_v;
+  return uniform(NoiseChannel::spike_sign, t_s) < 0.5 ? -size : size;
 }
 
 double World::standard_normal(NoiseChannel c, double t_s) const {
@@ -152,13 +212,22 @@ double World::standard_normal(NoiseChannel c, double t_s) const {
   return synthetic::NormalSource(h).next();
 }
 
+double World::uniform(NoiseChannel c, double t_s) const {
+  const double index = std::floor(std::max(t_s, 0.0) / scenario_.noise.sample_interval_s);
+  std::uint64_t h = mix64(scenario_.seed + 0x9E3779B97F4A7C15ULL);
+  h = mix64(h ^ static_cast<std::uint64_t>(c));
+  h = mix64(h ^ static_cast<std::uint64_t>(index));
+  return static_cast<double>(h >> 11) * 0x1.0p-53;  // the top 53 bits
+}
+
 // A first-order (6 dB/octave) output filter: the reading is
 //   X_out(t) = int_0^inf X(t - s) exp(-s/tau) ds/tau,
 // which after u = 1 - exp(-s/tau) is the plain average of X(t + tau ln(1 - u))
 // over u in (0, 1): evaluated with the midpoint rule on kFilterNodes nodes.
 // Before t = 0 the sample sat in its t = 0 state. After a step the reading
 // relaxes as 1 - exp(-dt/tau), the settling a poller must wait out.
-LockinReading World::lockin(double t_s, double time_constant_s, double range_v) const {
+LockinReading World::lockin(double t_s, double set_time_constant_s, double range_v) const {
+  const double time_constant_s = lockin_time_constant_s(t_s, set_time_constant_s);
   double x = 0.0;
   if (time_constant_s <= 0.0) {
     x = true_x_v(t_s);
@@ -170,7 +239,7 @@ LockinReading World::lockin(double t_s, double time_constant_s, double range_v) 
     x /= kFilterNodes;
   }
   LockinReading r;
-  r.x_v = x + scenario_.noise.lockin_x_v * standard_normal(NoiseChannel::lockin_x, t_s);
+  r.x_v = x + scenario_.noise.lockin_x_v * standard_normal(NoiseChannel::lockin_x, t_s) + spike_v(t_s);
   r.y_v = quadrature_fraction(t_s) * x +
           scenario_.noise.lockin_y_v * standard_normal(NoiseChannel::lockin_y, t_s);
   const double range = lockin_range_v(t_s, range_v);
@@ -195,7 +264,7 @@ ThermometerReading World::thermometer(double t_s) const {
 }
 
 double World::field_reading_t(double t_s) const {
-  return magnet_.field_t(t_s) +
+  return magnet_.field_t(std::max(0.0, t_s - scenario_.faults.field_lag_s)) +
          scenario_.noise.field_t * standard_normal(NoiseChannel::field, t_s);
 }
 
@@ -208,6 +277,19 @@ Truth World::truth(double from_s, double to_s) const {
   t.sigma0_s = sigma0_s(t.at_s);
   t.heating = heating_at(t.at_s);
   t.manual_field = magnet_.manual_during(from_s, to_s);
+  t.field_offset_t = remanent_field_t(t.at_s);
+  t.field_lag_s = scenario_.faults.field_lag_s;
+  t.lockin_time_constant_s = lockin_time_constant_s(t.at_s, scenario_.lockin.time_constant_s);
+  t.gain_factor = gain_factor(t.at_s);
+  t.temperature_start_k = bath_temperature_k(from_s);
+  t.temperature_end_k = bath_temperature_k(to_s);
+  for (const Faults::Hole& h : scenario_.faults.holes) {
+    const bool overlaps = h.start_s < to_s && (h.duration_s <= 0.0 || h.start_s + h.duration_s > from_s);
+    if (!overlaps) continue;
+    t.lockin_hole = true;
+    t.hole_from_t = h.from_t;
+    t.hole_to_t = h.to_t;
+  }
   return t;
 }
 
