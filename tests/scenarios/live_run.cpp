@@ -69,12 +69,22 @@ std::vector<nlohmann::json> LiveRun::truth(const std::string& kind) const {
 
 void LiveRun::write_config(const std::string& sample, const std::string& model,
                            const std::string& sample_extra, const std::string& tail) {
+  write_config_file(sample, model, false, sample_extra, tail);
+}
+
+void LiveRun::write_default_config(const std::string& sample, const std::string& model) {
+  write_config_file(sample, model, true, "", "");
+}
+
+void LiveRun::write_config_file(const std::string& sample, const std::string& model, bool defaults,
+                                const std::string& sample_extra, const std::string& tail) {
   const auto& s = scenario_["sample"];
   const auto& l = scenario_["lockin"];
   auto num = [](double v) { return fmt::format("{:.17g}", v); };
   std::ofstream out(file("lphid.toml"));
+  // The example config's [ingest] sets time_backward_tolerance_s = 60 too.
   out << "[daemon]\nlog_level = \"info\"\n"
-      << "[store]\n" << store_keys_ << "[ingest]\ntime_backward_tolerance_s = 60.0\n"
+      << "[store]\n" << (defaults ? "" : store_keys_) << "[ingest]\ntime_backward_tolerance_s = 60.0\n"
          "[[source]]\nname = \"lockin\"\nkind = \"lockin\"\n"
          "[[source]]\nname = \"mxc\"\nkind = \"thermometer\"\n"
          "[[source]]\nname = \"magnet\"\nkind = \"field\"\n"
@@ -87,7 +97,7 @@ void LiveRun::write_config(const std::string& sample, const std::string& model,
       << "excitation_a = " << num(l["current_a"]) << "\n"
       << "gain = " << num(l["gain"]) << "\n"
       << "lockin = \"lockin\"\nthermometer = \"mxc\"\nfield = \"magnet\"\n"
-      << default_analysis_keys() << sample_extra << "\n"
+      << (defaults ? "" : default_analysis_keys()) << sample_extra << "\n"
       << tail << "\n";
 }
 

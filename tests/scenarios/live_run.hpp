@@ -51,6 +51,10 @@ class LiveRun {
   // `sample_extra` lines, then `tail` (e.g. an [alerts] table).
   void write_config(const std::string& sample, const std::string& model,
                     const std::string& sample_extra = "", const std::string& tail = "");
+  // The same sample, but with lphid's defaults for every analysis key and
+  // for [store] and [ingest]: only what `lphid --print-example-config`
+  // sets, plus the sample's geometry, excitation and gain.
+  void write_default_config(const std::string& sample, const std::string& model);
   // The [store] keys write_config writes (default "commit_max_ms = 20").
   void set_store_keys(std::string keys) { store_keys_ = std::move(keys); }
 
@@ -83,6 +87,8 @@ class LiveRun {
   nlohmann::json scenario_;
   std::vector<nlohmann::json> records_;
   std::unique_ptr<DaemonProcess> daemon_;
+  void write_config_file(const std::string& sample, const std::string& model, bool defaults,
+                         const std::string& sample_extra, const std::string& tail);
 };
 
 // A copy of a recording with `offset_s` added to every time (e.g. relative
