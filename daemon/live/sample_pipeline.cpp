@@ -289,6 +289,9 @@ FitRecord SamplePipeline::fit_points(const std::vector<const segment::Sweep*>& s
   options.fit.fit_background = settings_.fit_background;
   options.fit.window_t = settings_.fit_window_t;
   options.temperature_k = last.temperature.mean_k;
+  // The segmenter emits one-sided sweeps for unipolar and one-way magnets:
+  // fitted with the odd-in-B term, said so in the reasons.
+  options.allow_one_sided = true;
   const sweep::Analysis a = sweep::analyze(legs, options);
   rec.result = schema::sweep_analysis_json(a);
   if (!a.ok) {
