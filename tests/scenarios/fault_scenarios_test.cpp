@@ -44,6 +44,7 @@ struct Outcome {
   std::vector<json> plateaus;    // the truth's plateau records
   std::vector<json> sweeps;      // `lphi sweeps --json`
   std::vector<json> fits;        // `lphi fits --json`
+  std::vector<json> alerts;      // `lphi alerts --all --json`
   std::string state;             // the verdict's, "" without one
   double offset_s = 0.0;         // Unix time of the recording's t = 0
   std::string replay_output;
@@ -77,6 +78,7 @@ Outcome run_default(LiveRun& run, const std::string& scenario) {
   o.replay_output = r.out + r.err;
   if (auto s = run.query("sweeps", kSample); s && s->is_array()) o.sweeps.assign(s->begin(), s->end());
   if (auto f = run.query("fits", kSample); f && f->is_array()) o.fits.assign(f->begin(), f->end());
+  if (auto a = run.query("alerts", "", {"--all"}); a && a->is_array()) o.alerts.assign(a->begin(), a->end());
   if (auto v = run.verdict(kSample)) o.state = v->value("state", "");
   run.stop_daemon();
   return o;
@@ -162,7 +164,11 @@ Figures judge(const Outcome& o) {
 
 // The whole test of one fault: the fault scenario and fault_free.toml, each
 // in its own lphid.
-void check_fault(const std::string& scenario) {
+struct Runs {
+  Outcome base, faulty;
+};
+
+Runs check_fault(const std::string& scenario) {
   LiveRun base_run, fault_run;
   const Outcome base = run_default(base_run, "fault_free.toml");
   const Outcome faulty = run_default(fault_run, scenario);
@@ -176,13 +182,39 @@ void check_fault(const std::string& scenario) {
   ::testing::Test::RecordProperty("figures", line);
   // gamma0 = 0: the film has no saturation, and the truth's verdict is a
   // power law (analysis/dephasing.hpp's states).
-  ASSERT_EQ(double(base.scenario["dephasing"]["gamma0_per_s"]), 0.0);
+  EXPECT_EQ(double(base.scenario["dephasing"]["gamma0_per_s"]), 0.0);
   EXPECT_EQ(base.state, "power-law") << "fault_free.toml: " << base.replay_output;
   EXPECT_EQ(faulty.state, base.state) << scenario << ": " << faulty.replay_output << fault_run.daemon_log();
   EXPECT_GT(f.used, 0u) << scenario << ": no fit entered L_phi(T)";
+  return {base, faulty};
 }
 
-TEST(FaultScenario, RemanentField2mT) { check_fault("fault_remanent_field.toml"); }
+std::vector<json> alerts_of(const Outcome& o, const std::string& rule) {
+  std::vector<json> out;
+  for (const auto& a : o.alerts)
+    if (a.value("rule", "") == rule) out.push_back(a);
+  return out;
+}
+
+// A 2 mT remanent field: every sweep's centre is 2 mT from the reading's
+// zero (within 3 of its standard errors or 0.1 mT), and the field-offset
+// alert says so with the advice; without the fault it is not raised.
+TEST(FaultScenario, RemanentField2mT) {
+  const Runs runs = check_fault("fault_remanent_field.toml");
+  std::size_t centred = 0;
+  for (const auto& fit : runs.faulty.fits) {
+    const double offset = number_or_nan(fit, "field_offset_t"), err = number_or_nan(fit, "field_offset_err_t");
+    if (!std::isfinite(offset) || !std::isfinite(err)) continue;
+    ++centred;
+    EXPECT_LE(std::abs(std::abs(offset) - 2e-3), std::max(3.0 * err, 1e-4)) << fit.dump();
+  }
+  EXPECT_GT(centred, 0u);
+  const auto offset_alerts = alerts_of(runs.faulty, "field-offset");
+  ASSERT_FALSE(offset_alerts.empty()) << "no field-offset alert";
+  EXPECT_NE(offset_alerts.front().value("message", "").find("remanent field"), std::string::npos)
+      << offset_alerts.front().dump();
+  EXPECT_TRUE(alerts_of(runs.base, "field-offset").empty()) << alerts_of(runs.base, "field-offset").front().dump();
+}
 TEST(FaultScenario, RemanentField03mT) { check_fault("fault_remanent_field_small.toml"); }
 TEST(FaultScenario, FieldReadingLag1s) { check_fault("fault_field_lag.toml"); }
 TEST(FaultScenario, LockinTimeConstant03sWhileSweeping) { check_fault("fault_lockin_time_constant.toml"); }
