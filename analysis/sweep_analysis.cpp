@@ -9,6 +9,7 @@
 
 #include "analysis/constants.hpp"
 #include "analysis/magnetoconductance.hpp"
+#include "analysis/sweep_hints.hpp"
 #include "analysis/sweep_residuals.hpp"
 
 namespace lphi::sweep {
@@ -292,6 +293,16 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
         a.chi2_red_quantum = a.fit.chi2_red;
         a.chi2_red = fit::chi2_red_against_noise(a.prepared.points, a.fit, fit_options);
         if (a.chi2_red) a.error_scale = std::sqrt(std::max(1.0, *a.chi2_red));
+        // Structure in the residuals (the runs test on their signs, over
+        // blocks as long as the noise's correlation: fit::judge_quality)
+        // and the model hints (fit::model_hints).
+        const fit::FitQuality quality = fit::judge_quality(a.prepared.points, a.fit, fit_options);
+        a.runs_p = quality.runs_p;
+        if (quality.runs_p < fit::kRunsPUnusable)
+          note(a, "residual-structure",
+               fmt::format("the residuals have structure: runs test p = {:.2g} (limit {:.0g}): {}",
+                           quality.runs_p, fit::kRunsPUnusable, quality.reason));
+        a.hints = fit::model_hints(a.prepared.points, a.fit, fit_options, fit_options.geometry);
       }
       a.sigma0_s = a.prepared.sigma0_s;
       a.sigma0_err_s = a.prepared.sigma0_err_s;
@@ -393,6 +404,12 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
       advise(a, fmt::format("extend the sweep to +-{} to separate alpha from L_phi",
                             millitesla(options.fit.window_factor * a.fit.b_phi_t)));
   }
+  // A hint does not keep the sweep out: it names the model that would suit
+  // it, with the numbers (both fits' chi2_red for spin-orbit).
+  for (const fit::ModelHint& h : a.hints) {
+    note(a, "model-hint-" + h.name, h.message);
+    advise(a, fmt::format("try the {} model: {}", mc::model_name(h.suggested), h.message));
+  }
   if (a.flat) advise(a, "no weak-localization signal above the noise: check the sample's "
                         "contacts and the lock-in's sensitivity");
   check_units(a, reach);
@@ -402,7 +419,8 @@ Analysis analyze(std::span<const std::vector<Reading>> legs, const Options& opti
       "no-wl-signal",     "hole-across-zero", "too-few-near-zero", "no-readings",
       "not-prepared",     "fit-failed",       "fit-chi2",
       "window-too-narrow", "not-converged",   "too-few-points",    "parameter-at-limit",
-      "cusp-not-resolved", "swept-too-fast",  "field-offset-uncertain", "units-suspect"};
+      "cusp-not-resolved", "swept-too-fast",  "field-offset-uncertain", "units-suspect",
+      "residual-structure"};
   a.usable = a.fit.ok && std::isfinite(a.fit.lphi_m) && a.fit.lphi_m > 0.0;
   for (const char* name : kExcluding)
     if (a.has(name)) a.usable = false;

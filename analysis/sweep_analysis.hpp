@@ -37,6 +37,7 @@
 #include "analysis/conductance.hpp"
 #include "analysis/field_axis.hpp"
 #include "analysis/sweep_fit.hpp"
+#include "analysis/sweep_hints.hpp"
 
 namespace lphi::sweep {
 
@@ -124,6 +125,8 @@ struct Analysis {
   std::optional<double> chi2_red;        // against the sweep's own noise
   double chi2_red_quantum = kNaN;        // fit_sweep's, in (e^2/(pi h))^2
   double error_scale = 1.0;              // sqrt(max(1, chi2_red))
+  double runs_p = 1.0;                   // runs test on the residuals' signs (fit::judge_quality)
+  std::vector<fit::ModelHint> hints;     // fit::model_hints: another model or geometry would suit
   // The field at which the fitted model leaves its low-field regime: B_phi
   // for a film, max(B_phi, B_so) with spin-orbit, sqrt(3) hbar/(e w L_phi)
   // for a wire. Coverage, the offset and the sweep rate are judged against it.

@@ -68,6 +68,15 @@ nlohmann::json sweep_analysis_json(const sweep::Analysis& a) {
   j["remanent_field_t"] = finite_json(a.remanent_field_t);
   j["lag_field_t"] = finite_json(a.lag_shift_t);
   j["characteristic_field_t"] = finite_json(a.characteristic_field_t);
+  j["runs_p"] = finite_json(a.runs_p);
+  nlohmann::json hints = nlohmann::json::array();
+  for (const fit::ModelHint& h : a.hints)
+    hints.push_back({{"name", h.name},
+                     {"suggested_model", std::string(mc::model_name(h.suggested))},
+                     {"message", h.message},
+                     {"chi2_red_fitted", h.chi2_red_fitted ? finite_json(*h.chi2_red_fitted) : nlohmann::json(nullptr)},
+                     {"chi2_red_suggested", h.chi2_red_suggested ? finite_json(*h.chi2_red_suggested) : nlohmann::json(nullptr)}});
+  j["hints"] = hints;
   j["field_lag_s"] = finite_json(a.field_lag_s);
   j["field_lag_err_s"] = finite_json(a.field_lag_err_s);
   j["sweep_rate_t_per_s"] = finite_json(a.sweep_rate_t_per_s);

@@ -14,6 +14,8 @@
 #include "analysis/conductance.hpp"
 #include "analysis/magnetoconductance.hpp"
 #include "analysis/sweep_fit.hpp"
+#include "analysis/sweep_residuals.hpp"
+#include "schema/result_json.hpp"
 #include "tests/analysis/sweep/leg_maker.hpp"
 
 namespace sw = lphi::sweep;
@@ -284,3 +286,38 @@ TEST(SweepAnalysis, PrepareWithOffsetShiftsTheFields) {
   }
   EXPECT_DOUBLE_EQ(a.field_offset_t, -1e-3);
 }
+
+namespace {
+
+// The model hints reach the analysis: a film with strong spin-orbit
+// scattering (HLN's symplectic limit, alpha = -1/2: Hikami, Larkin and
+// Nagaoka, Prog. Theor. Phys. 63, 707 (1980)) fitted with hln2d is told to
+// try hln2d-so, with both fits' chi2_red, in its reasons and its advice; the
+// hint does not keep the sweep out. A weak-localization sweep gets none.
+TEST(SweepAnalysis, AntilocalizationIsToldToTryTheSpinOrbitModel) {
+  LegPlan plan;
+  plan.alpha = -0.5;
+  plan.noise_ohm = 0.01;
+  sw::Options options;
+  const auto legs = both_legs(plan);
+  const sw::Analysis a = sw::analyze(legs, options);
+  ASSERT_TRUE(a.ok) << a.error;
+  ASSERT_TRUE(a.fit.ok) << a.fit.error;
+  ASSERT_TRUE(a.has("model-hint-spin-orbit")) << a.advice;
+  ASSERT_FALSE(a.hints.empty());
+  EXPECT_EQ(a.hints.front().suggested, lphi::mc::Model::hln2d_so);
+  EXPECT_NE(a.advice.find("hln2d-so"), std::string::npos) << a.advice;
+  const nlohmann::json j = lphi::schema::sweep_analysis_json(a);
+  ASSERT_EQ(j.at("hints").size(), a.hints.size());
+  EXPECT_EQ(j.at("hints")[0].at("suggested_model"), "hln2d-so");
+
+  LegPlan wl;
+  wl.noise_ohm = 0.01;
+  const sw::Analysis clean = sw::analyze(both_legs(wl), options);
+  ASSERT_TRUE(clean.fit.ok) << clean.fit.error;
+  EXPECT_TRUE(clean.hints.empty()) << clean.advice;
+  EXPECT_TRUE(clean.usable) << clean.advice;
+  EXPECT_GT(clean.runs_p, lphi::fit::kRunsPUnusable);
+}
+
+}  // namespace
