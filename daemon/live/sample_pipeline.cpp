@@ -317,8 +317,10 @@ FitRecord SamplePipeline::fit_points(const std::vector<const segment::Sweep*>& s
     rec.sigma0_err_s = a.sigma0_err_s;
   }
   for (const auto& reason : a.reasons) rec.quality.push_back(reason.name + ": " + reason.sentence);
-  const auto usable = checks::fit_quality(a.fit, false, settings_.quality);
-  rec.used_in_dephasing = a.usable && usable.usable_for_dephasing;
+  // sweep::analyze already leaves out a failed or unconverged fit and the
+  // flags checks::fit_quality names (window-too-narrow, too-few-points,
+  // parameter-at-limit, not-converged), so its verdict is the one used.
+  rec.used_in_dephasing = a.usable;
   return rec;
 }
 

@@ -4,16 +4,16 @@
 // magnet (B) -- and runs, in event time:
 //   Aligner -> SweepSegmenter -> for each completed sweep:
 //     lock-in X -> R = X/(gain I) -> R_sq = R/N (conductance.hpp)
-//     -> prepare_sweep (symmetrize, sigma(0), Delta sigma) -> fit_sweep
-//     -> lock-in, heating and fit-quality checks (live_checks.hpp)
+//     -> sweep::analyze (centre, coverage, prepare, fit, judge: sweep_analysis.hpp)
+//     -> lock-in and heating checks (live_checks.hpp)
 //   -> after each new fit: L_phi(T) over the usable fits (fit_dephasing),
 //      sigma(0) per temperature plateau, verdict::assess, regime.
 // and emits plain records (SweepRecord, FitRecord, VerdictRecord,
 // ZeroFieldRecord) for the caller to store and publish.
 //
-// Which fits enter L_phi(T): those that checks::fit_quality() finds usable for
-// dephasing (fitted, converged, none of window-too-narrow, too-few-points,
-// parameter-at-limit), whose temperature drift moves L_phi by less than its
+// Which fits enter L_phi(T): those sweep::analyze finds usable (fitted,
+// converged, none of window-too-narrow, too-few-points, parameter-at-limit,
+// the cusp resolved, chi2_red and the residuals within their limits), whose temperature drift moves L_phi by less than its
 // error and that agree with the other sweeps of their plateau
 // (fit_admission.hpp: the temperature a fit is reported at, the drift, the
 // plateau comparison, and the errors scaled by sqrt(chi2_red) that L_phi(T)
@@ -109,7 +109,6 @@ struct SampleSettings {
   segment::SegmenterOptions segmenter;
   checks::HeatingOptions heating;
   checks::LockinOptions lockin;
-  checks::FitQualityOptions quality;
   std::size_t max_queued_sweeps = 4;
   // A thermometer reading above this, after one below half of it, starts a
   // new cooldown for the sweeps that follow (see Cooldowns above).
